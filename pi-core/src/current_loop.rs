@@ -1,0 +1,404 @@
+//! The assembled current loop: one call per control tick.
+//!
+//! [`CurrentLoop::tick`] takes the ADC reading of the current, the measured bus
+//! voltage and optionally the speed, and returns the [`DriveCommand`] for the next
+//! PWM period. Inside, in this order:
+//!
+//! 1. calibration: counts to amperes ([`crate::sense`]);
+//! 2. supervision: faults detected and latched ([`crate::supervisor`]); anything
+//!    latched gives the safe command and resets the PI and the setpoint;
+//! 3. setpoint: the requested current, limited and slewed ([`crate::setpoint`]);
+//! 4. PI: amperes to volts ([`crate::pi`]), limited to what the bus can give now
+//!    minus the feedforward, so anti-windup acts on the real actuator limit;
+//! 5. feedforward: `R * i_ref + Ke * speed` added to the PI output;
+//! 6. volts to duty by the measured bus, limited to the duty range ([`crate::output`]).
+//!
+//! # States
+//!
+//! ```text
+//!              enable (nothing latched)
+//!   Disabled ---------------------------> Running
+//!      ^  ^  <---------------------------   |
+//!      |  |            disable              |
+//!      |  +-----------------+               | a fault latches (also from Disabled)
+//!      |    clear_faults Ok |               v
+//!      +------------------ Faulted <--------+
+//! ```
+//!
+//! * `Disabled`: safe command; supervision keeps running, so sensor and bus faults
+//!   latch even while idle.
+//! * `Running`: closed loop.
+//! * `Faulted`: safe command until the faults are cleared; clearing is refused while
+//!   a cause is present and leads to `Disabled`, never straight back to `Running`.
+//!
+//! Leaving `Running` (by disable or fault) resets the PI integrator and sets the
+//! setpoint back to 0 A, so a later enable starts from rest and ramps up again.
+//!
+//! ```
+//! use pi_core::prelude::*;
+//!
+//! # fn main() -> Result<(), pi_core::ConfigError> {
+//! let period_s = 50e-6; // 20 kHz
+//! let config = LoopConfig::new(
+//!     CurrentSense::from_shunt(12, 3.3, 0.010, 20.0, 2048.0)?,
+//!     SetpointLimits::new(-4.0, 4.0, 2000.0)?,
+//!     SupervisorConfig::new(OvercurrentLimit::new(6.0, 3)?, BusWindow::new(18.0, 30.0)?),
+//!     PiConfig::new(PiGains::from_kp_ti(3.0, 1.26e-3)?, period_s, OutputLimits::symmetric(30.0)?)?,
+//!     DutyMapping::new(0.95, 12.0)?,
+//! )?;
+//! let mut cl = CurrentLoop::new(config)?;
+//! cl.apply(Command::Enable).unwrap();
+//! cl.apply(Command::SetCurrent(1.5)).unwrap();
+//! let cmd = cl.tick(&TickInput { current_counts: 2048, bus_v: 24.0, speed_rad_s: None });
+//! assert!(cmd.enabled && cmd.direction == Direction::Forward && cmd.duty > 0.0);
+//! # Ok(()) }
+//! ```
+
+use crate::error::{CommandError, ConfigError, Requirement, non_negative};
+use crate::output::{DriveCommand, DutyMapping};
+use crate::pi::{PiConfig, PiController, PiGains};
+use crate::sense::CurrentSense;
+use crate::setpoint::{Acceptance, SetpointLimits, SetpointShaper};
+use crate::supervisor::{Fault, FaultSet, Observation, Supervisor, SupervisorConfig};
+
+/// Validated feedforward terms: `v_ff = R * i_ref + Ke * speed`.
+#[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Feedforward {
+    resistance_ohm: f32,
+    back_emf_v_s_per_rad: f32,
+}
+
+impl Feedforward {
+    /// No feedforward.
+    pub const NONE: Feedforward = Feedforward {
+        resistance_ohm: 0.0,
+        back_emf_v_s_per_rad: 0.0,
+    };
+
+    /// Resistive term `R` (ohm) and back-EMF constant `Ke` (V s/rad), both >= 0;
+    /// 0 switches a term off. The speed term is used only on ticks that carry a speed.
+    pub fn new(resistance_ohm: f32, back_emf_v_s_per_rad: f32) -> Result<Self, ConfigError> {
+        Ok(Self {
+            resistance_ohm: non_negative("resistance_ohm", resistance_ohm)?,
+            back_emf_v_s_per_rad: non_negative("back_emf_v_s_per_rad", back_emf_v_s_per_rad)?,
+        })
+    }
+}
+
+/// Everything the assembled loop needs, validated together.
+#[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct LoopConfig {
+    sense: CurrentSense,
+    setpoint: SetpointLimits,
+    supervisor: SupervisorConfig,
+    pi: PiConfig,
+    duty: DutyMapping,
+    feedforward: Feedforward,
+}
+
+impl LoopConfig {
+    /// Checks the parts against each other: the largest setpoint must be below the
+    /// overcurrent threshold (or a valid setpoint would trip the loop), and the
+    /// threshold must be below the largest current the sensor reads before a rail
+    /// (or overcurrent would show up as a sensor fault).
+    pub fn new(
+        sense: CurrentSense,
+        setpoint: SetpointLimits,
+        supervisor: SupervisorConfig,
+        pi: PiConfig,
+        duty: DutyMapping,
+    ) -> Result<Self, ConfigError> {
+        let threshold = supervisor.overcurrent().threshold_a();
+        if setpoint.max_magnitude_a() >= threshold {
+            return Err(ConfigError::new(
+                "setpoint_max_a",
+                setpoint.max_magnitude_a(),
+                Requirement::Below("the overcurrent threshold_a"),
+            ));
+        }
+        if threshold >= sense.readable_a() {
+            return Err(ConfigError::new(
+                "threshold_a",
+                threshold,
+                Requirement::Below("the largest current the sensor reads before a rail"),
+            ));
+        }
+        Ok(Self {
+            sense,
+            setpoint,
+            supervisor,
+            pi,
+            duty,
+            feedforward: Feedforward::NONE,
+        })
+    }
+
+    /// The same configuration with feedforward.
+    pub fn with_feedforward(self, feedforward: Feedforward) -> Self {
+        Self { feedforward, ..self }
+    }
+
+    /// The control period, seconds (the PI's).
+    pub fn period_s(&self) -> f32 {
+        self.pi.period_s()
+    }
+}
+
+/// The loop's state; see the module notes for the transitions.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum LoopState {
+    /// Bridge off, supervision running.
+    Disabled,
+    /// Closed loop.
+    Running,
+    /// Bridge off until the faults are cleared.
+    Faulted,
+}
+
+/// The inputs of one control tick.
+#[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct TickInput {
+    /// The current-sense ADC reading for this period.
+    pub current_counts: u16,
+    /// Measured bus voltage, volts.
+    pub bus_v: f32,
+    /// Measured speed, rad/s (positive = forward), if available.
+    pub speed_rad_s: Option<f32>,
+}
+
+/// A request from the main loop, usually passed through a queue (see [`crate::handoff`]).
+#[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum Command {
+    /// New target current, amperes; limited and slewed. Refused while faulted.
+    SetCurrent(f32),
+    /// New gains, applied bumplessly at the next tick.
+    Retune(PiGains),
+    /// Start closed-loop control; refused while faults are latched.
+    Enable,
+    /// Stop: safe command, PI reset, setpoint 0 A.
+    Disable,
+    /// Clear latched faults (refused while a cause is present); leads to `Disabled`.
+    ClearFaults,
+}
+
+/// A snapshot of the loop for telemetry.
+#[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct LoopStatus {
+    /// State after the last tick or command.
+    pub state: LoopState,
+    /// Latched fault causes.
+    pub latched: FaultSet,
+    /// First cause since the last clear.
+    pub first_fault: Option<Fault>,
+    /// The slewed setpoint the PI saw, amperes.
+    pub setpoint_a: f32,
+    /// The target being approached, amperes.
+    pub target_a: f32,
+    /// The last measured current, amperes.
+    pub current_a: f32,
+    /// The last PI output plus feedforward, volts.
+    pub commanded_v: f32,
+    /// The last drive command.
+    pub command: DriveCommand,
+    /// Normalised I^2t heat (1 = rated steady state), 0 without a thermal model.
+    pub heat: f32,
+}
+
+/// The assembled current loop.
+#[derive(Clone, Debug)]
+pub struct CurrentLoop {
+    config: LoopConfig,
+    sense: CurrentSense,
+    setpoint: SetpointShaper,
+    supervisor: Supervisor,
+    pi: PiController,
+    state: LoopState,
+    last: DriveCommand,
+    last_current_a: f32,
+    last_volts: f32,
+}
+
+impl CurrentLoop {
+    /// A disabled loop with nothing latched.
+    pub fn new(config: LoopConfig) -> Result<Self, ConfigError> {
+        let period_s = config.pi.period_s();
+        Ok(Self {
+            sense: config.sense,
+            setpoint: SetpointShaper::new(config.setpoint, period_s),
+            supervisor: Supervisor::new(config.supervisor, period_s)?,
+            pi: PiController::new(config.pi),
+            config,
+            state: LoopState::Disabled,
+            last: DriveCommand::SAFE,
+            last_current_a: 0.0,
+            last_volts: 0.0,
+        })
+    }
+
+    /// One control tick; call it once per control period from the interrupt.
+    /// Never panics, allocates or blocks.
+    #[inline]
+    pub fn tick(&mut self, input: &TickInput) -> DriveCommand {
+        let current_a = self.sense.to_amperes(input.current_counts);
+        let drive = if self.last.enabled { self.last.duty } else { 0.0 };
+        let obs = Observation {
+            current_a,
+            counts: input.current_counts,
+            at_rail: self.sense.at_rail(input.current_counts),
+            bus_v: input.bus_v,
+            speed_rad_s: input.speed_rad_s,
+            drive,
+        };
+        let latched = self.supervisor.check(&obs);
+        self.last_current_a = current_a;
+        let command = if !latched.is_empty() {
+            if self.state != LoopState::Faulted {
+                self.stop();
+                self.state = LoopState::Faulted;
+            }
+            DriveCommand::SAFE
+        } else if self.state == LoopState::Running {
+            self.run(current_a, input)
+        } else {
+            DriveCommand::SAFE
+        };
+        self.last = command;
+        command
+    }
+
+    #[inline]
+    fn run(&mut self, current_a: f32, input: &TickInput) -> DriveCommand {
+        let i_ref = self.setpoint.next();
+        let ff = &self.config.feedforward;
+        let speed_term = match input.speed_rad_s {
+            Some(w) => ff.back_emf_v_s_per_rad * w,
+            None => 0.0,
+        };
+        let v_ff = ff.resistance_ohm * i_ref + speed_term;
+        let available = self.config.duty.available_v(input.bus_v);
+        let v_pi = self
+            .pi
+            .update_within(i_ref, current_a, -available - v_ff, available - v_ff);
+        let volts = v_pi + v_ff;
+        self.last_volts = volts;
+        self.config.duty.command(volts, input.bus_v)
+    }
+
+    fn stop(&mut self) {
+        self.pi.reset();
+        self.setpoint.reset();
+        self.last_volts = 0.0;
+    }
+
+    /// Carries out a command from the main loop. On error nothing changed.
+    pub fn apply(&mut self, command: Command) -> Result<Acceptance, CommandError> {
+        match command {
+            Command::SetCurrent(a) => {
+                if self.state == LoopState::Faulted {
+                    return Err(CommandError::Faulted(self.supervisor.latched()));
+                }
+                self.setpoint.request(a)
+            }
+            Command::Retune(gains) => {
+                self.pi.retune(gains);
+                Ok(Acceptance::Exact)
+            }
+            Command::Enable => {
+                let latched = self.supervisor.latched();
+                if !latched.is_empty() {
+                    return Err(CommandError::Faulted(latched));
+                }
+                if self.state != LoopState::Running {
+                    self.pi.reset();
+                    self.state = LoopState::Running;
+                }
+                Ok(Acceptance::Exact)
+            }
+            Command::Disable => {
+                if self.state == LoopState::Running {
+                    self.stop();
+                    self.state = LoopState::Disabled;
+                    self.last = DriveCommand::SAFE;
+                }
+                Ok(Acceptance::Exact)
+            }
+            Command::ClearFaults => {
+                self.supervisor.clear()?;
+                if self.state == LoopState::Faulted {
+                    self.state = LoopState::Disabled;
+                }
+                Ok(Acceptance::Exact)
+            }
+        }
+    }
+
+    /// Replaces the current-sense calibration (for example after an offset
+    /// calibration). Refused while running, since it would step the measurement.
+    pub fn set_sense(&mut self, sense: CurrentSense) -> Result<(), CommandError> {
+        if self.state == LoopState::Running {
+            return Err(CommandError::NotWhileRunning);
+        }
+        let threshold = self.config.supervisor.overcurrent().threshold_a();
+        if threshold >= sense.readable_a() {
+            return Err(CommandError::Config(ConfigError::new(
+                "threshold_a",
+                threshold,
+                Requirement::Below("the largest current the sensor reads before a rail"),
+            )));
+        }
+        self.sense = sense;
+        self.config.sense = sense;
+        Ok(())
+    }
+
+    /// The present state.
+    pub fn state(&self) -> LoopState {
+        self.state
+    }
+
+    /// A telemetry snapshot.
+    pub fn status(&self) -> LoopStatus {
+        LoopStatus {
+            state: self.state,
+            latched: self.supervisor.latched(),
+            first_fault: self.supervisor.first(),
+            setpoint_a: self.setpoint.value_a(),
+            target_a: self.setpoint.target_a(),
+            current_a: self.last_current_a,
+            commanded_v: self.last_volts,
+            command: self.last,
+            heat: self.supervisor.thermal().map_or(0.0, |t| t.heat()),
+        }
+    }
+
+    /// The PI controller (read-only: integrator, saturation, gains).
+    pub fn pi(&self) -> &PiController {
+        &self.pi
+    }
+
+    /// The supervisor (read-only: present and latched causes, thermal state).
+    pub fn supervisor(&self) -> &Supervisor {
+        &self.supervisor
+    }
+
+    /// The supervisor, for setting the thermal model's heat after a reset.
+    pub fn supervisor_mut(&mut self) -> &mut Supervisor {
+        &mut self.supervisor
+    }
+
+    /// The current-sense calibration in use.
+    pub fn sense(&self) -> &CurrentSense {
+        &self.sense
+    }
+
+    /// The configuration in use.
+    pub fn config(&self) -> &LoopConfig {
+        &self.config
+    }
+}

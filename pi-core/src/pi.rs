@@ -1,0 +1,703 @@
+//! The bare PI controller: amperes in, volts out.
+//!
+//! It knows nothing about ADCs, faults or PWM; the assembled loop
+//! ([`crate::CurrentLoop`]) wraps it. Use it alone when you already have a
+//! current in amperes and want a voltage.
+//!
+//! # Control law
+//!
+//! Parallel form with a proportional setpoint weight `b` (two-degree-of-freedom PI):
+//!
+//! ```text
+//! e[k] = r[k] - y[k]                       (amperes; positive = more current wanted)
+//! P[k] = Kp * (b * r[k] - y[k])            (volts)
+//! I[k] = I[k-1] + Ki * Ts * e[k]           backward Euler (default)
+//! I[k] = I[k-1] + Ki * Ts / 2 * (e[k] + e[k-1])   Tustin (trapezoidal)
+//! u[k] = sat(P[k] + I[k])                  clamped to the output limits
+//! ```
+//!
+//! `r` is the current setpoint, `y` the measured current, both in amperes with the
+//! same sign convention (positive = forward); `u` is the voltage to apply across the
+//! load, positive driving positive current. With `b = 1` this is the textbook PI.
+//! With `b < 1` the response to setpoint steps loses the overshoot that the
+//! controller's zero adds, while the response to disturbances is unchanged.
+//!
+//! # Anti-windup
+//!
+//! * [`AntiWindup::Clamping`] (conditional integration): the integrator does not
+//!   move in a step that would drive a saturated output further into saturation.
+//! * [`AntiWindup::BackCalculation`]: the integrator is pulled back by
+//!   `Ts / Tt * (u_sat - u_unsat)` each step, with tracking time `Tt`.
+//!
+//! Whatever the mode, the integrator is kept inside the output range after every
+//! step, so the integrator alone can never ask for more than the output can give.
+//!
+//! # Bad input
+//!
+//! If the error `r - y` is NaN or infinite the update returns 0 V and leaves the
+//! integrator untouched; the supervisor in the assembled loop faults on such a
+//! reading before it reaches here.
+//!
+//! ```
+//! use pi_core::pi::{OutputLimits, PiConfig, PiController, PiGains};
+//!
+//! // 2.4 mH, 1.9 ohm winding (invented demo values); Kp = 3 V/A, Ti = L/R.
+//! let gains = PiGains::from_kp_ti(3.0, 2.4e-3 / 1.9)?;
+//! let limits = OutputLimits::new(-24.0, 24.0)?;
+//! let config = PiConfig::new(gains, 50e-6, limits)?;
+//! let mut pi = PiController::new(config);
+//! let volts = pi.update(1.0, 0.0); // 1 A wanted, 0 A measured
+//! // Kp e + Ki Ts e = 3 + 3 / 1.263e-3 * 50e-6 = 3.119 V on the first step.
+//! assert!((volts - 3.1188).abs() < 1e-3);
+//! # Ok::<(), pi_core::ConfigError>(())
+//! ```
+
+use crate::error::{ConfigError, Requirement, finite, non_negative, positive, within};
+
+/// How the integral is discretised.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Default)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum IntegratorRule {
+    /// `I[k] = I[k-1] + Ki Ts e[k]`: uses the newest error, no extra state. Default.
+    #[default]
+    BackwardEuler,
+    /// `I[k] = I[k-1] + Ki Ts (e[k] + e[k-1]) / 2`: trapezoidal, matches the
+    /// continuous integrator's phase better at the cost of one stored error.
+    Tustin,
+}
+
+/// How the integrator is kept from winding up while the output is saturated.
+#[derive(Clone, Copy, Debug, PartialEq, Default)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum AntiWindup {
+    /// Conditional integration: skip the integrator step when the output is
+    /// saturated and the step would push it further the same way. Default.
+    #[default]
+    Clamping,
+    /// Back-calculation: feed `Ts / Tt * (u_sat - u_unsat)` back into the integrator.
+    ///
+    /// `tracking_time_s: None` selects the default `Tt = Ti` (but never shorter than
+    /// one control period). Åström and Hägglund (Advanced PID Control, ISA 2006,
+    /// sec. 3.5) advise a tracking time between `Td` and `Ti`, with `sqrt(Ti Td)` as
+    /// the rule of thumb; a PI has `Td = 0`, where that rule would give an infinitely
+    /// fast reset, so the default takes the upper end of their range. A given time
+    /// must be at least one control period (`Ts / Tt <= 1` keeps the correction stable).
+    BackCalculation {
+        /// Tracking time constant `Tt` in seconds, or `None` for `Tt = Ti`.
+        tracking_time_s: Option<f32>,
+    },
+}
+
+/// Whether the last output hit a limit.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Default)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum Saturation {
+    /// The output was inside the limits.
+    #[default]
+    None,
+    /// The output was clamped to the upper limit.
+    High,
+    /// The output was clamped to the lower limit.
+    Low,
+}
+
+/// Validated PI gains: proportional gain, integral gain and setpoint weight.
+#[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct PiGains {
+    kp_v_per_a: f32,
+    ki_v_per_a_s: f32,
+    setpoint_weight: f32,
+}
+
+impl PiGains {
+    /// Gains from the proportional gain `Kp` (V/A) and the integral time `Ti` (s),
+    /// `Ki = Kp / Ti`. `Kp` must be > 0 and `Ti` > 0; `Ti = f32::INFINITY` gives a
+    /// proportional-only controller.
+    pub fn from_kp_ti(kp_v_per_a: f32, ti_s: f32) -> Result<Self, ConfigError> {
+        let kp = positive("kp_v_per_a", kp_v_per_a)?;
+        if ti_s.is_nan() || ti_s <= 0.0 {
+            return Err(ConfigError::new("ti_s", ti_s, Requirement::Positive));
+        }
+        let ki = if ti_s.is_infinite() { 0.0 } else { kp / ti_s };
+        Self::from_kp_ki(kp, ki)
+    }
+
+    /// Gains from `Kp` (V/A) and `Ki` (V/(A s)), both finite and >= 0, not both zero.
+    pub fn from_kp_ki(kp_v_per_a: f32, ki_v_per_a_s: f32) -> Result<Self, ConfigError> {
+        let kp = non_negative("kp_v_per_a", kp_v_per_a)?;
+        let ki = non_negative("ki_v_per_a_s", ki_v_per_a_s)?;
+        if kp == 0.0 && ki == 0.0 {
+            return Err(ConfigError::new("kp_v_per_a", kp, Requirement::Positive));
+        }
+        Ok(Self {
+            kp_v_per_a: kp,
+            ki_v_per_a_s: ki,
+            setpoint_weight: 1.0,
+        })
+    }
+
+    /// The same gains with proportional setpoint weight `b` in `[0, 1]` (default 1).
+    pub fn with_setpoint_weight(self, b: f32) -> Result<Self, ConfigError> {
+        let b = within("setpoint_weight", b, 0.0, 1.0)?;
+        Ok(Self {
+            setpoint_weight: b,
+            ..self
+        })
+    }
+
+    /// Proportional gain in V/A.
+    pub fn kp_v_per_a(&self) -> f32 {
+        self.kp_v_per_a
+    }
+
+    /// Integral gain in V/(A s).
+    pub fn ki_v_per_a_s(&self) -> f32 {
+        self.ki_v_per_a_s
+    }
+
+    /// Integral time `Kp / Ki` in seconds (infinite when `Ki = 0`).
+    pub fn ti_s(&self) -> f32 {
+        if self.ki_v_per_a_s > 0.0 {
+            self.kp_v_per_a / self.ki_v_per_a_s
+        } else {
+            f32::INFINITY
+        }
+    }
+
+    /// Proportional setpoint weight `b`.
+    pub fn setpoint_weight(&self) -> f32 {
+        self.setpoint_weight
+    }
+}
+
+/// Validated output voltage limits `min_v < max_v`.
+#[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct OutputLimits {
+    min_v: f32,
+    max_v: f32,
+}
+
+impl OutputLimits {
+    /// Limits in volts; both finite, `max_v > min_v`. A unidirectional drive may
+    /// use `min_v = 0`.
+    pub fn new(min_v: f32, max_v: f32) -> Result<Self, ConfigError> {
+        let min_v = finite("min_v", min_v)?;
+        let max_v = finite("max_v", max_v)?;
+        if max_v <= min_v {
+            return Err(ConfigError::new("max_v", max_v, Requirement::Above("min_v")));
+        }
+        Ok(Self { min_v, max_v })
+    }
+
+    /// Symmetric limits `-v_max .. v_max`, `v_max > 0`.
+    pub fn symmetric(v_max: f32) -> Result<Self, ConfigError> {
+        let v = positive("v_max", v_max)?;
+        Self::new(-v, v)
+    }
+
+    /// Lower limit in volts.
+    pub fn min_v(&self) -> f32 {
+        self.min_v
+    }
+
+    /// Upper limit in volts.
+    pub fn max_v(&self) -> f32 {
+        self.max_v
+    }
+}
+
+/// A validated PI configuration: gains, control period, limits, rules.
+#[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct PiConfig {
+    gains: PiGains,
+    period_s: f32,
+    limits: OutputLimits,
+    rule: IntegratorRule,
+    anti_windup: AntiWindup,
+}
+
+impl PiConfig {
+    /// Configuration with backward-Euler integration and clamping anti-windup.
+    /// `period_s` is the control period `Ts` in seconds, finite and > 0.
+    pub fn new(gains: PiGains, period_s: f32, limits: OutputLimits) -> Result<Self, ConfigError> {
+        let period_s = positive("period_s", period_s)?;
+        Ok(Self {
+            gains,
+            period_s,
+            limits,
+            rule: IntegratorRule::BackwardEuler,
+            anti_windup: AntiWindup::Clamping,
+        })
+    }
+
+    /// The same configuration with another integrator rule.
+    pub fn with_rule(self, rule: IntegratorRule) -> Self {
+        Self { rule, ..self }
+    }
+
+    /// The same configuration with another anti-windup scheme. A back-calculation
+    /// tracking time must be finite and at least one control period.
+    pub fn with_anti_windup(self, anti_windup: AntiWindup) -> Result<Self, ConfigError> {
+        if let AntiWindup::BackCalculation {
+            tracking_time_s: Some(tt),
+        } = anti_windup
+        {
+            if !(tt.is_finite() && tt >= self.period_s) {
+                return Err(ConfigError::new(
+                    "tracking_time_s",
+                    tt,
+                    Requirement::Within {
+                        min: self.period_s,
+                        max: f32::MAX,
+                    },
+                ));
+            }
+        }
+        Ok(Self { anti_windup, ..self })
+    }
+
+    /// The gains.
+    pub fn gains(&self) -> PiGains {
+        self.gains
+    }
+
+    /// Control period in seconds.
+    pub fn period_s(&self) -> f32 {
+        self.period_s
+    }
+
+    /// Output limits.
+    pub fn limits(&self) -> OutputLimits {
+        self.limits
+    }
+
+    /// Integrator rule.
+    pub fn rule(&self) -> IntegratorRule {
+        self.rule
+    }
+
+    /// Anti-windup scheme.
+    pub fn anti_windup(&self) -> AntiWindup {
+        self.anti_windup
+    }
+
+    /// The back-calculation tracking time in effect (seconds), `None` for clamping.
+    pub fn tracking_time_s(&self) -> Option<f32> {
+        match self.anti_windup {
+            AntiWindup::Clamping => None,
+            AntiWindup::BackCalculation {
+                tracking_time_s: Some(tt),
+            } => Some(tt),
+            AntiWindup::BackCalculation {
+                tracking_time_s: None,
+            } => {
+                let ti = self.gains.ti_s();
+                Some(if ti > self.period_s { ti } else { self.period_s })
+            }
+        }
+    }
+}
+
+/// Coefficients precomputed from a configuration so the update is multiply-adds.
+#[derive(Clone, Copy, Debug, PartialEq)]
+struct Coefficients {
+    /// `Kp`.
+    kp: f32,
+    /// `Kp * b`.
+    kp_b: f32,
+    /// `Ki Ts` (backward Euler) or `Ki Ts / 2` (Tustin).
+    ki_step: f32,
+    /// `Ts / Tt` for back-calculation, unused for clamping.
+    tracking: f32,
+    tustin: bool,
+    back_calculation: bool,
+}
+
+impl Coefficients {
+    fn from_config(c: &PiConfig) -> Self {
+        let g = c.gains;
+        let tustin = c.rule == IntegratorRule::Tustin;
+        let ki_ts = g.ki_v_per_a_s * c.period_s;
+        let tracking = match c.tracking_time_s() {
+            Some(tt) => c.period_s / tt,
+            None => 0.0,
+        };
+        Self {
+            kp: g.kp_v_per_a,
+            kp_b: g.kp_v_per_a * g.setpoint_weight,
+            ki_step: if tustin { 0.5 * ki_ts } else { ki_ts },
+            tracking,
+            tustin,
+            back_calculation: matches!(c.anti_windup, AntiWindup::BackCalculation { .. }),
+        }
+    }
+}
+
+/// Clamp without the panic that `f32::clamp` carries for `lo > hi` or NaN bounds.
+/// A NaN `x` yields `lo`; callers keep `x` finite.
+#[inline(always)]
+pub(crate) fn clamp(x: f32, lo: f32, hi: f32) -> f32 {
+    let y = if x > lo { x } else { lo };
+    if y < hi { y } else { hi }
+}
+
+/// The PI controller with its state.
+#[derive(Clone, Debug)]
+pub struct PiController {
+    config: PiConfig,
+    k: Coefficients,
+    integrator_v: f32,
+    prev_error_a: f32,
+    last_setpoint_a: f32,
+    last_measured_a: f32,
+    last_output_v: f32,
+    last_min_v: f32,
+    last_max_v: f32,
+    saturation: Saturation,
+}
+
+impl PiController {
+    /// A controller at rest (integrator 0 V).
+    pub fn new(config: PiConfig) -> Self {
+        Self {
+            k: Coefficients::from_config(&config),
+            config,
+            integrator_v: 0.0,
+            prev_error_a: 0.0,
+            last_setpoint_a: 0.0,
+            last_measured_a: 0.0,
+            last_output_v: 0.0,
+            last_min_v: config.limits.min_v,
+            last_max_v: config.limits.max_v,
+            saturation: Saturation::None,
+        }
+    }
+
+    /// One control step with the configured limits; returns the voltage to apply.
+    #[inline]
+    pub fn update(&mut self, setpoint_a: f32, measured_a: f32) -> f32 {
+        let l = self.config.limits;
+        self.update_within(setpoint_a, measured_a, l.min_v, l.max_v)
+    }
+
+    /// One control step with limits narrower than the configured ones for this step
+    /// only, for example the voltage the bus can give right now. The limits used are
+    /// the intersection of `[min_v, max_v]` with the configured range; if that is
+    /// empty both collapse onto the upper one of the two, so the output is still a
+    /// single defined value inside the configured range. A NaN limit is replaced by
+    /// the configured one.
+    #[inline]
+    pub fn update_within(&mut self, setpoint_a: f32, measured_a: f32, min_v: f32, max_v: f32) -> f32 {
+        let l = self.config.limits;
+        let max_v = if max_v.is_nan() { l.max_v } else { max_v };
+        let min_v = if min_v.is_nan() { l.min_v } else { min_v };
+        let hi = clamp(max_v, l.min_v, l.max_v);
+        let lo = clamp(min_v, l.min_v, hi);
+
+        let e = setpoint_a - measured_a;
+        if !e.is_finite() {
+            self.saturation = Saturation::None;
+            self.last_output_v = 0.0;
+            return 0.0;
+        }
+        let k = self.k;
+        let p = k.kp_b * setpoint_a - k.kp * measured_a;
+        let step = if k.tustin {
+            k.ki_step * (e + self.prev_error_a)
+        } else {
+            k.ki_step * e
+        };
+        let candidate = self.integrator_v + step;
+        let unsat = p + candidate;
+        let (u, integ) = if k.back_calculation {
+            let u = clamp(unsat, lo, hi);
+            (u, candidate + k.tracking * (u - unsat))
+        } else {
+            let pushing_up = unsat > hi && step > 0.0;
+            let pushing_down = unsat < lo && step < 0.0;
+            let integ = if pushing_up || pushing_down {
+                self.integrator_v
+            } else {
+                candidate
+            };
+            (clamp(p + integ, lo, hi), integ)
+        };
+        self.integrator_v = clamp(integ, lo, hi);
+        self.prev_error_a = e;
+        self.last_setpoint_a = setpoint_a;
+        self.last_measured_a = measured_a;
+        self.last_output_v = u;
+        self.last_min_v = lo;
+        self.last_max_v = hi;
+        self.saturation = if unsat > hi {
+            Saturation::High
+        } else if unsat < lo {
+            Saturation::Low
+        } else {
+            Saturation::None
+        };
+        u
+    }
+
+    /// Bumpless retune: the new gains take effect at the next update, and the
+    /// integrator is re-expressed so that, for the last setpoint and measurement,
+    /// the new gains give the same output as the last update did. The next output
+    /// therefore differs from the last one only by the new integral step.
+    pub fn retune(&mut self, gains: PiGains) {
+        self.config.gains = gains;
+        self.k = Coefficients::from_config(&self.config);
+        let p_new = self.k.kp_b * self.last_setpoint_a - self.k.kp * self.last_measured_a;
+        self.integrator_v = clamp(self.last_output_v - p_new, self.last_min_v, self.last_max_v);
+    }
+
+    /// Validates `Kp` and `Ti` and retunes bumplessly; on error the old gains stay.
+    /// The setpoint weight in use is kept.
+    pub fn retune_kp_ti(&mut self, kp_v_per_a: f32, ti_s: f32) -> Result<(), ConfigError> {
+        let b = self.config.gains.setpoint_weight;
+        let gains = PiGains::from_kp_ti(kp_v_per_a, ti_s)?.with_setpoint_weight(b)?;
+        self.retune(gains);
+        Ok(())
+    }
+
+    /// Track/preload: set the integrator so that the controller, at this setpoint
+    /// and measurement, outputs `output_v`; used when taking over from open-loop
+    /// drive without a step. `output_v` must lie within the configured limits and all
+    /// values be finite. If the proportional part alone is beyond the output range the
+    /// integrator is held at the range edge and the first output saturates.
+    pub fn track(&mut self, output_v: f32, setpoint_a: f32, measured_a: f32) -> Result<(), ConfigError> {
+        let l = self.config.limits;
+        let u = within("output_v", output_v, l.min_v, l.max_v)?;
+        let r = finite("setpoint_a", setpoint_a)?;
+        let y = finite("measured_a", measured_a)?;
+        let p = self.k.kp_b * r - self.k.kp * y;
+        self.integrator_v = clamp(u - p, l.min_v, l.max_v);
+        self.prev_error_a = r - y;
+        self.last_setpoint_a = r;
+        self.last_measured_a = y;
+        self.last_output_v = u;
+        self.last_min_v = l.min_v;
+        self.last_max_v = l.max_v;
+        Ok(())
+    }
+
+    /// Return to rest: integrator and remembered error and output to zero.
+    pub fn reset(&mut self) {
+        self.integrator_v = 0.0;
+        self.prev_error_a = 0.0;
+        self.last_setpoint_a = 0.0;
+        self.last_measured_a = 0.0;
+        self.last_output_v = 0.0;
+        self.saturation = Saturation::None;
+    }
+
+    /// Integrator state in volts (always inside the output range).
+    pub fn integrator_v(&self) -> f32 {
+        self.integrator_v
+    }
+
+    /// The output of the last update in volts.
+    pub fn last_output_v(&self) -> f32 {
+        self.last_output_v
+    }
+
+    /// Whether the last update saturated.
+    pub fn saturation(&self) -> Saturation {
+        self.saturation
+    }
+
+    /// The configuration in use (including gains set by retuning).
+    pub fn config(&self) -> &PiConfig {
+        &self.config
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn controller(rule: IntegratorRule, aw: AntiWindup) -> PiController {
+        // Dyadic values so every product and sum below is exact in f32:
+        // Ki Ts = 1024 * 2^-12 = 0.25.
+        let gains = PiGains::from_kp_ki(0.5, 1024.0).unwrap();
+        let cfg = PiConfig::new(gains, 1.0 / 4096.0, OutputLimits::symmetric(100.0).unwrap())
+            .unwrap()
+            .with_rule(rule)
+            .with_anti_windup(aw)
+            .unwrap();
+        PiController::new(cfg)
+    }
+
+    // Discrete integrator sums of a constant error e from rest (a step at k = 1):
+    // backward Euler I_k = k Ki Ts e; trapezoidal I_k = (k - 1/2) Ki Ts e, since
+    // e[0] = 0 before the step. Franklin, Powell & Workman, Digital Control of
+    // Dynamic Systems, 3rd ed., ch. 6 (the two rules as recurrences).
+    #[test]
+    fn backward_euler_integrator_is_exact_on_constant_error() {
+        let mut pi = controller(IntegratorRule::BackwardEuler, AntiWindup::Clamping);
+        for k in 1..=40 {
+            let u = pi.update(1.5, 0.0);
+            let expected_i = k as f32 * 0.25 * 1.5;
+            assert_eq!(pi.integrator_v(), expected_i, "step {k}");
+            assert_eq!(u, 0.5 * 1.5 + expected_i, "step {k}");
+        }
+    }
+
+    #[test]
+    fn tustin_integrator_is_exact_on_constant_error() {
+        let mut pi = controller(IntegratorRule::Tustin, AntiWindup::Clamping);
+        for k in 1..=40 {
+            let u = pi.update(1.5, 0.0);
+            let expected_i = (k as f32 - 0.5) * 0.25 * 1.5;
+            assert_eq!(pi.integrator_v(), expected_i, "step {k}");
+            assert_eq!(u, 0.75 + expected_i, "step {k}");
+        }
+    }
+
+    #[test]
+    fn setpoint_weight_scales_only_the_setpoint_path() {
+        let gains = PiGains::from_kp_ki(2.0, 0.0)
+            .unwrap()
+            .with_setpoint_weight(0.25)
+            .unwrap();
+        let cfg = PiConfig::new(gains, 1e-4, OutputLimits::symmetric(50.0).unwrap()).unwrap();
+        let mut pi = PiController::new(cfg);
+        // P = Kp (b r - y) = 2 (0.25 * 4 - 1) = 0.
+        assert_eq!(pi.update(4.0, 1.0), 0.0);
+        // Disturbance path unchanged: P = 2 (0.25 * 4 - 3) = -4.
+        assert_eq!(pi.update(4.0, 3.0), -4.0);
+    }
+
+    #[test]
+    fn output_and_integrator_stay_inside_limits() {
+        for aw in [
+            AntiWindup::Clamping,
+            AntiWindup::BackCalculation {
+                tracking_time_s: None,
+            },
+        ] {
+            let mut pi = controller(IntegratorRule::BackwardEuler, aw);
+            for _ in 0..10_000 {
+                let u = pi.update(1e4, 0.0);
+                assert!(u <= 100.0);
+                assert!(pi.integrator_v() <= 100.0);
+            }
+            assert_eq!(pi.saturation(), Saturation::High);
+            for _ in 0..10_000 {
+                let u = pi.update(-1e4, 0.0);
+                assert!(u >= -100.0);
+                assert!(pi.integrator_v() >= -100.0);
+            }
+            assert_eq!(pi.saturation(), Saturation::Low);
+        }
+    }
+
+    #[test]
+    fn clamping_freezes_the_integrator_while_pushing_into_the_limit() {
+        let mut pi = controller(IntegratorRule::BackwardEuler, AntiWindup::Clamping);
+        // P alone = 0.5 * 1000 = 500 V > 100 V: the first step already saturates,
+        // so the integrator must not move at all.
+        for _ in 0..100 {
+            assert_eq!(pi.update(1000.0, 0.0), 100.0);
+            assert_eq!(pi.integrator_v(), 0.0);
+        }
+        // An error of the other sign integrates at once.
+        pi.update(-1.0, 0.0);
+        assert_eq!(pi.integrator_v(), -0.25);
+    }
+
+    #[test]
+    fn non_finite_error_gives_zero_volts_and_keeps_the_integrator() {
+        let mut pi = controller(IntegratorRule::BackwardEuler, AntiWindup::Clamping);
+        pi.update(1.0, 0.0);
+        let held = pi.integrator_v();
+        for (r, y) in [(f32::NAN, 0.0), (1.0, f32::INFINITY), (f32::NEG_INFINITY, 0.0)] {
+            assert_eq!(pi.update(r, y), 0.0);
+            assert_eq!(pi.integrator_v(), held);
+        }
+    }
+
+    #[test]
+    fn nan_limits_fall_back_to_configured_ones() {
+        let mut pi = controller(IntegratorRule::BackwardEuler, AntiWindup::Clamping);
+        let u = pi.update_within(1e6, 0.0, f32::NAN, f32::NAN);
+        assert_eq!(u, 100.0);
+        let u = pi.update_within(-1e6, 0.0, -3.0, 3.0);
+        assert_eq!(u, -3.0);
+    }
+
+    #[test]
+    fn retune_is_bumpless() {
+        for rule in [IntegratorRule::BackwardEuler, IntegratorRule::Tustin] {
+            let mut pi = controller(rule, AntiWindup::Clamping);
+            let mut u_before = 0.0;
+            for _ in 0..7 {
+                u_before = pi.update(2.0, 0.5);
+            }
+            let new = PiGains::from_kp_ki(4.0, 300.0)
+                .unwrap()
+                .with_setpoint_weight(0.6)
+                .unwrap();
+            pi.retune(new);
+            let u_after = pi.update(2.0, 0.5);
+            // Only the new integral step separates the two outputs.
+            // Backward Euler: Ki Ts e; Tustin: Ki Ts (e + e_prev) / 2; both 1.5 Ki Ts here.
+            let ki_step = 300.0 / 4096.0 * 1.5;
+            assert!(
+                (u_after - u_before - ki_step).abs() < 1e-6,
+                "{rule:?}: {u_before} -> {u_after}"
+            );
+            // The proportional jump a plain gain swap would cause is large.
+            let naive_jump = 4.0 * (0.6 * 2.0 - 0.5) - 0.5 * 1.5;
+            assert!(naive_jump > 1.0);
+        }
+    }
+
+    #[test]
+    fn invalid_retune_keeps_the_old_gains() {
+        let mut pi = controller(IntegratorRule::BackwardEuler, AntiWindup::Clamping);
+        let old = pi.config().gains();
+        for (kp, ti) in [
+            (f32::NAN, 1e-3),
+            (-1.0, 1e-3),
+            (1.0, 0.0),
+            (1.0, -1e-3),
+            (1.0, f32::NAN),
+        ] {
+            let err = pi.retune_kp_ti(kp, ti).unwrap_err();
+            assert!(err.field == "kp_v_per_a" || err.field == "ti_s");
+            assert_eq!(pi.config().gains(), old);
+        }
+    }
+
+    #[test]
+    fn track_preloads_the_output() {
+        let mut pi = controller(IntegratorRule::BackwardEuler, AntiWindup::Clamping);
+        pi.track(12.0, 3.0, 2.0).unwrap();
+        // The next step at the same operating point adds only the integral step.
+        let u = pi.update(3.0, 2.0);
+        assert_eq!(u, 12.0 + 0.25);
+        assert!(pi.track(120.0, 3.0, 2.0).is_err());
+        pi.reset();
+        assert_eq!(pi.integrator_v(), 0.0);
+    }
+
+    #[test]
+    fn configuration_errors_name_the_field() {
+        assert_eq!(PiGains::from_kp_ti(0.0, 1.0).unwrap_err().field, "kp_v_per_a");
+        assert_eq!(PiGains::from_kp_ki(0.0, 0.0).unwrap_err().field, "kp_v_per_a");
+        assert_eq!(PiGains::from_kp_ki(1.0, -1.0).unwrap_err().field, "ki_v_per_a_s");
+        let g = PiGains::from_kp_ki(1.0, 1.0).unwrap();
+        assert_eq!(g.with_setpoint_weight(1.5).unwrap_err().field, "setpoint_weight");
+        let l = OutputLimits::symmetric(10.0).unwrap();
+        assert_eq!(PiConfig::new(g, 0.0, l).unwrap_err().field, "period_s");
+        assert_eq!(OutputLimits::new(1.0, 1.0).unwrap_err().field, "max_v");
+        let cfg = PiConfig::new(g, 1e-4, l).unwrap();
+        let bad = AntiWindup::BackCalculation {
+            tracking_time_s: Some(1e-5),
+        };
+        assert_eq!(cfg.with_anti_windup(bad).unwrap_err().field, "tracking_time_s");
+    }
+}

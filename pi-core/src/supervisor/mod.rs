@@ -1,0 +1,637 @@
+//! The fault supervisor: detects, latches and reports faults.
+//!
+//! Each control tick the supervisor looks at one [`Observation`] and marks every
+//! cause whose condition holds now as *present*. A present cause trips (is added to
+//! the latched set) at once, except overcurrent, which trips after a configured
+//! number of consecutive samples, and a stuck sensor, which trips after a
+//! configured number of frozen ticks. The first cause to trip is kept separately
+//! ([`Supervisor::first`]); when several trip in the same tick the first is the one
+//! listed earliest in [`Fault`].
+//!
+//! Latched causes stay latched until [`Supervisor::clear`], which is refused while
+//! any cause is still present. The assembled loop drives the safe state (bridge
+//! disabled, duty 0, integrator reset) whenever anything is latched.
+//!
+//! | cause | present while |
+//! |---|---|
+//! | [`Fault::Overcurrent`] | `|i| > threshold_a` on the latest sample |
+//! | [`Fault::Overload`] | the I^2t heat is above the rated steady state ([`thermal`]) |
+//! | [`Fault::CurrentInvalid`] | the current is NaN or infinite |
+//! | [`Fault::SensorRail`] | the ADC reading is at or beyond a rail |
+//! | [`Fault::SensorStuck`] | the reading has not moved by more than the band for the set ticks while the drive is at least the set fraction; with the drive off it cannot be seen, so it counts as gone |
+//! | [`Fault::BusUndervoltage`] / [`Fault::BusOvervoltage`] | the bus is outside its window |
+//! | [`Fault::BusInvalid`] | the bus reading is NaN or infinite |
+//! | [`Fault::SpeedInvalid`] | a speed was given and it is NaN or infinite |
+
+pub mod thermal;
+
+use core::fmt;
+
+use crate::error::{ClearRefused, ConfigError, Requirement, finite, positive};
+pub use thermal::{ThermalConfig, ThermalModel, TripClass};
+
+/// One fault cause. The order is the tie-break for [`Supervisor::first`].
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[repr(u16)]
+pub enum Fault {
+    /// Current magnitude above the overcurrent threshold for the set samples.
+    Overcurrent = 1 << 0,
+    /// I^2t thermal model reached its trip level.
+    Overload = 1 << 1,
+    /// Current reading NaN or infinite.
+    CurrentInvalid = 1 << 2,
+    /// ADC reading at a rail: sensor open, shorted or clipping.
+    SensorRail = 1 << 3,
+    /// ADC reading frozen while the drive is large.
+    SensorStuck = 1 << 4,
+    /// Bus voltage below the window.
+    BusUndervoltage = 1 << 5,
+    /// Bus voltage above the window.
+    BusOvervoltage = 1 << 6,
+    /// Bus voltage reading NaN or infinite.
+    BusInvalid = 1 << 7,
+    /// Speed reading NaN or infinite.
+    SpeedInvalid = 1 << 8,
+}
+
+impl Fault {
+    /// Every cause, in tie-break order.
+    pub const ALL: [Fault; 9] = [
+        Fault::Overcurrent,
+        Fault::Overload,
+        Fault::CurrentInvalid,
+        Fault::SensorRail,
+        Fault::SensorStuck,
+        Fault::BusUndervoltage,
+        Fault::BusOvervoltage,
+        Fault::BusInvalid,
+        Fault::SpeedInvalid,
+    ];
+
+    /// A short description for people.
+    pub fn describe(self) -> &'static str {
+        match self {
+            Fault::Overcurrent => "over-current",
+            Fault::Overload => "winding overload (I^2t)",
+            Fault::CurrentInvalid => "invalid current reading",
+            Fault::SensorRail => "current sensor at a rail",
+            Fault::SensorStuck => "current sensor stuck",
+            Fault::BusUndervoltage => "bus under-voltage",
+            Fault::BusOvervoltage => "bus over-voltage",
+            Fault::BusInvalid => "invalid bus voltage reading",
+            Fault::SpeedInvalid => "invalid speed reading",
+        }
+    }
+}
+
+impl fmt::Display for Fault {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str(self.describe())
+    }
+}
+
+/// A set of fault causes (a bit per [`Fault`]).
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Default)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct FaultSet(u16);
+
+impl FaultSet {
+    /// No causes.
+    pub const EMPTY: FaultSet = FaultSet(0);
+
+    /// True when no cause is in the set.
+    #[inline]
+    pub fn is_empty(self) -> bool {
+        self.0 == 0
+    }
+
+    /// True when `fault` is in the set.
+    #[inline]
+    pub fn contains(self, fault: Fault) -> bool {
+        self.0 & fault as u16 != 0
+    }
+
+    /// The set with `fault` added.
+    #[inline]
+    pub fn with(self, fault: Fault) -> FaultSet {
+        FaultSet(self.0 | fault as u16)
+    }
+
+    /// The set with `fault` added when `condition` holds.
+    #[inline]
+    fn with_if(self, fault: Fault, condition: bool) -> FaultSet {
+        FaultSet(self.0 | ((condition as u16) * fault as u16))
+    }
+
+    /// Causes in either set.
+    #[inline]
+    pub fn union(self, other: FaultSet) -> FaultSet {
+        FaultSet(self.0 | other.0)
+    }
+
+    /// The raw bits (bit values are those of [`Fault`]), for telemetry.
+    pub fn bits(self) -> u16 {
+        self.0
+    }
+
+    /// The earliest cause in tie-break order, if any.
+    pub fn earliest(self) -> Option<Fault> {
+        Fault::ALL.into_iter().find(|f| self.contains(*f))
+    }
+
+    /// The causes in tie-break order.
+    pub fn iter(self) -> impl Iterator<Item = Fault> {
+        Fault::ALL.into_iter().filter(move |f| self.contains(*f))
+    }
+}
+
+impl fmt::Display for FaultSet {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        if self.is_empty() {
+            return f.write_str("no fault");
+        }
+        for (k, fault) in self.iter().enumerate() {
+            if k > 0 {
+                f.write_str(", ")?;
+            }
+            f.write_str(fault.describe())?;
+        }
+        Ok(())
+    }
+}
+
+/// Validated overcurrent limit: `|i| > threshold_a` for `samples` consecutive samples trips.
+#[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct OvercurrentLimit {
+    threshold_a: f32,
+    samples: u16,
+}
+
+impl OvercurrentLimit {
+    /// `threshold_a > 0`, `samples >= 1` (1 trips on the first sample above).
+    pub fn new(threshold_a: f32, samples: u16) -> Result<Self, ConfigError> {
+        let threshold_a = positive("threshold_a", threshold_a)?;
+        if samples == 0 {
+            return Err(ConfigError::new("samples", 0.0, Requirement::AtLeastOne));
+        }
+        Ok(Self { threshold_a, samples })
+    }
+
+    /// Threshold in amperes (magnitude).
+    pub fn threshold_a(&self) -> f32 {
+        self.threshold_a
+    }
+
+    /// Consecutive samples above the threshold needed to trip.
+    pub fn samples(&self) -> u16 {
+        self.samples
+    }
+}
+
+/// Validated bus-voltage window `min_v < max_v`, `min_v > 0`.
+#[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct BusWindow {
+    min_v: f32,
+    max_v: f32,
+}
+
+impl BusWindow {
+    /// Under-voltage below `min_v` (> 0), over-voltage above `max_v` (> `min_v`).
+    pub fn new(min_v: f32, max_v: f32) -> Result<Self, ConfigError> {
+        let min_v = positive("bus_min_v", min_v)?;
+        let max_v = finite("bus_max_v", max_v)?;
+        if max_v <= min_v {
+            return Err(ConfigError::new(
+                "bus_max_v",
+                max_v,
+                Requirement::Above("bus_min_v"),
+            ));
+        }
+        Ok(Self { min_v, max_v })
+    }
+
+    /// Lowest good bus voltage, volts.
+    pub fn min_v(&self) -> f32 {
+        self.min_v
+    }
+
+    /// Highest good bus voltage, volts.
+    pub fn max_v(&self) -> f32 {
+        self.max_v
+    }
+}
+
+/// Validated stuck-sensor detection.
+#[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct StuckDetection {
+    band_counts: u16,
+    ticks: u16,
+    min_drive: f32,
+}
+
+impl StuckDetection {
+    /// Trips after `ticks` (>= 1) consecutive ticks in which the reading moved by
+    /// `band_counts` or less while the drive magnitude (duty fraction) was at least
+    /// `min_drive` (in `(0, 1]`). A real sensor shows noise and ripple of a few
+    /// counts, so pick a band below that and enough ticks to span several PWM periods.
+    pub fn new(band_counts: u16, ticks: u16, min_drive: f32) -> Result<Self, ConfigError> {
+        if ticks == 0 {
+            return Err(ConfigError::new("stuck_ticks", 0.0, Requirement::AtLeastOne));
+        }
+        let min_drive = crate::error::within("min_drive", min_drive, f32::MIN_POSITIVE, 1.0)?;
+        Ok(Self {
+            band_counts,
+            ticks,
+            min_drive,
+        })
+    }
+}
+
+/// Validated supervisor configuration.
+#[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct SupervisorConfig {
+    overcurrent: OvercurrentLimit,
+    bus: BusWindow,
+    thermal: Option<ThermalConfig>,
+    stuck: Option<StuckDetection>,
+}
+
+impl SupervisorConfig {
+    /// Overcurrent and bus window; no I^2t model and no stuck detection until added.
+    pub fn new(overcurrent: OvercurrentLimit, bus: BusWindow) -> Self {
+        Self {
+            overcurrent,
+            bus,
+            thermal: None,
+            stuck: None,
+        }
+    }
+
+    /// Adds the I^2t thermal model.
+    pub fn with_thermal(self, thermal: ThermalConfig) -> Self {
+        Self {
+            thermal: Some(thermal),
+            ..self
+        }
+    }
+
+    /// Adds stuck-sensor detection.
+    pub fn with_stuck_detection(self, stuck: StuckDetection) -> Self {
+        Self {
+            stuck: Some(stuck),
+            ..self
+        }
+    }
+
+    /// The overcurrent limit.
+    pub fn overcurrent(&self) -> OvercurrentLimit {
+        self.overcurrent
+    }
+
+    /// The bus window.
+    pub fn bus(&self) -> BusWindow {
+        self.bus
+    }
+
+    /// The thermal model parameters, if enabled.
+    pub fn thermal(&self) -> Option<ThermalConfig> {
+        self.thermal
+    }
+}
+
+/// What the supervisor looks at in one tick.
+#[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Observation {
+    /// Calibrated current, amperes (positive = forward).
+    pub current_a: f32,
+    /// The raw ADC reading it came from.
+    pub counts: u16,
+    /// Whether that reading is at a rail ([`crate::sense::CurrentSense::at_rail`]).
+    pub at_rail: bool,
+    /// Measured bus voltage, volts.
+    pub bus_v: f32,
+    /// Measured speed, rad/s, if the application has one.
+    pub speed_rad_s: Option<f32>,
+    /// Magnitude of the duty applied during the period just measured, 0 to 1.
+    pub drive: f32,
+}
+
+/// The running supervisor.
+#[derive(Clone, Debug)]
+pub struct Supervisor {
+    config: SupervisorConfig,
+    thermal: Option<ThermalModel>,
+    over_count: u16,
+    stuck_count: u16,
+    last_counts: Option<u16>,
+    present: FaultSet,
+    latched: FaultSet,
+    first: Option<Fault>,
+}
+
+impl Supervisor {
+    /// A supervisor with nothing latched and a cold thermal model, for a control
+    /// period of `period_s` seconds.
+    pub fn new(config: SupervisorConfig, period_s: f32) -> Result<Self, ConfigError> {
+        let thermal = match config.thermal {
+            Some(t) => Some(ThermalModel::new(t, period_s)?),
+            None => None,
+        };
+        Ok(Self {
+            config,
+            thermal,
+            over_count: 0,
+            stuck_count: 0,
+            last_counts: None,
+            present: FaultSet::EMPTY,
+            latched: FaultSet::EMPTY,
+            first: None,
+        })
+    }
+
+    /// Looks at one tick and returns the latched set after it.
+    #[inline]
+    pub fn check(&mut self, obs: &Observation) -> FaultSet {
+        let i = obs.current_a;
+        let current_ok = i.is_finite();
+        let over = current_ok && i.abs() > self.config.overcurrent.threshold_a;
+        self.over_count = if over {
+            self.over_count.saturating_add(1)
+        } else {
+            0
+        };
+        let over_trip = self.over_count >= self.config.overcurrent.samples;
+
+        let hot_trip = match &mut self.thermal {
+            Some(model) => model.tick(i),
+            None => false,
+        };
+        let still_hot = match &self.thermal {
+            Some(model) => model.still_hot(),
+            None => false,
+        };
+
+        let stuck_trip = match self.config.stuck {
+            Some(s) => {
+                let frozen = match self.last_counts {
+                    Some(last) => obs.counts.abs_diff(last) <= s.band_counts,
+                    None => false,
+                };
+                let watching = obs.drive >= s.min_drive;
+                self.stuck_count = if frozen && watching {
+                    self.stuck_count.saturating_add(1)
+                } else {
+                    0
+                };
+                self.stuck_count >= s.ticks
+            }
+            None => false,
+        };
+        self.last_counts = Some(obs.counts);
+
+        let bus = obs.bus_v;
+        let bus_ok = bus.is_finite();
+        let speed_bad = match obs.speed_rad_s {
+            Some(w) => !w.is_finite(),
+            None => false,
+        };
+
+        self.present = FaultSet::EMPTY
+            .with_if(Fault::Overcurrent, over)
+            .with_if(Fault::Overload, still_hot || hot_trip)
+            .with_if(Fault::CurrentInvalid, !current_ok)
+            .with_if(Fault::SensorRail, obs.at_rail)
+            .with_if(Fault::SensorStuck, stuck_trip)
+            .with_if(Fault::BusUndervoltage, bus_ok && bus < self.config.bus.min_v)
+            .with_if(Fault::BusOvervoltage, bus_ok && bus > self.config.bus.max_v)
+            .with_if(Fault::BusInvalid, !bus_ok)
+            .with_if(Fault::SpeedInvalid, speed_bad);
+
+        // Everything present trips at once, except overcurrent (needs its count) and
+        // overload (needs the trip level, not just "warm").
+        let mut tripped = FaultSet(self.present.0 & !(Fault::Overcurrent as u16 | Fault::Overload as u16));
+        tripped = tripped.with_if(Fault::Overcurrent, over_trip);
+        tripped = tripped.with_if(Fault::Overload, hot_trip);
+        if self.latched.is_empty() && !tripped.is_empty() {
+            self.first = tripped.earliest();
+        }
+        self.latched = self.latched.union(tripped);
+        self.latched
+    }
+
+    /// Clears the latch, or refuses with the causes still present (the latch then
+    /// stays as it was). The thermal model keeps its heat either way.
+    pub fn clear(&mut self) -> Result<(), ClearRefused> {
+        if !self.present.is_empty() {
+            return Err(ClearRefused {
+                still_present: self.present,
+            });
+        }
+        self.latched = FaultSet::EMPTY;
+        self.first = None;
+        self.over_count = 0;
+        self.stuck_count = 0;
+        Ok(())
+    }
+
+    /// The latched causes.
+    pub fn latched(&self) -> FaultSet {
+        self.latched
+    }
+
+    /// The causes present at the last check.
+    pub fn present(&self) -> FaultSet {
+        self.present
+    }
+
+    /// The first cause that tripped since the last clear.
+    pub fn first(&self) -> Option<Fault> {
+        self.first
+    }
+
+    /// The thermal model, if enabled.
+    pub fn thermal(&self) -> Option<&ThermalModel> {
+        self.thermal.as_ref()
+    }
+
+    /// The thermal model for setting its heat, if enabled.
+    pub fn thermal_mut(&mut self) -> Option<&mut ThermalModel> {
+        self.thermal.as_mut()
+    }
+
+    /// The configuration.
+    pub fn config(&self) -> &SupervisorConfig {
+        &self.config
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn obs(current_a: f32) -> Observation {
+        Observation {
+            current_a,
+            counts: 2048,
+            at_rail: false,
+            bus_v: 24.0,
+            speed_rad_s: None,
+            drive: 0.0,
+        }
+    }
+
+    fn supervisor(samples: u16) -> Supervisor {
+        let cfg = SupervisorConfig::new(
+            OvercurrentLimit::new(5.0, samples).unwrap(),
+            BusWindow::new(10.0, 30.0).unwrap(),
+        );
+        Supervisor::new(cfg, 1e-4).unwrap()
+    }
+
+    #[test]
+    fn overcurrent_trips_on_exactly_the_configured_sample() {
+        for n in [1u16, 2, 3, 7, 50] {
+            let mut s = supervisor(n);
+            for k in 1..n {
+                assert!(s.check(&obs(-5.5)).is_empty(), "n={n}, sample {k}");
+            }
+            assert!(s.check(&obs(-5.5)).contains(Fault::Overcurrent), "n={n}");
+            assert_eq!(s.first(), Some(Fault::Overcurrent));
+        }
+    }
+
+    #[test]
+    fn overcurrent_count_restarts_below_threshold() {
+        let mut s = supervisor(3);
+        s.check(&obs(6.0));
+        s.check(&obs(6.0));
+        s.check(&obs(5.0)); // at the threshold is not above it
+        s.check(&obs(6.0));
+        assert!(s.check(&obs(6.0)).is_empty());
+        assert!(!s.check(&obs(6.0)).is_empty());
+    }
+
+    #[test]
+    fn faults_cannot_be_cleared_while_present() {
+        let mut s = supervisor(1);
+        s.check(&obs(9.0));
+        let refused = s.clear().unwrap_err();
+        assert!(refused.still_present.contains(Fault::Overcurrent));
+        assert!(s.latched().contains(Fault::Overcurrent));
+        s.check(&obs(0.0));
+        assert!(s.latched().contains(Fault::Overcurrent), "latched until cleared");
+        s.clear().unwrap();
+        assert!(s.latched().is_empty());
+        assert_eq!(s.first(), None);
+    }
+
+    #[test]
+    fn first_cause_is_kept() {
+        let mut s = supervisor(1);
+        let mut o = obs(0.0);
+        o.bus_v = 5.0;
+        s.check(&o);
+        s.check(&obs(f32::NAN));
+        assert_eq!(s.first(), Some(Fault::BusUndervoltage));
+        assert!(s.latched().contains(Fault::CurrentInvalid));
+    }
+
+    #[test]
+    fn bad_readings_trip_in_one_tick() {
+        let cases: [(Observation, Fault); 6] = [
+            (obs(f32::NAN), Fault::CurrentInvalid),
+            (obs(f32::INFINITY), Fault::CurrentInvalid),
+            (
+                Observation {
+                    at_rail: true,
+                    ..obs(0.0)
+                },
+                Fault::SensorRail,
+            ),
+            (
+                Observation {
+                    bus_v: f32::NAN,
+                    ..obs(0.0)
+                },
+                Fault::BusInvalid,
+            ),
+            (
+                Observation {
+                    bus_v: 31.0,
+                    ..obs(0.0)
+                },
+                Fault::BusOvervoltage,
+            ),
+            (
+                Observation {
+                    speed_rad_s: Some(f32::NEG_INFINITY),
+                    ..obs(0.0)
+                },
+                Fault::SpeedInvalid,
+            ),
+        ];
+        for (o, fault) in cases {
+            let mut s = supervisor(3);
+            assert!(s.check(&o).contains(fault), "{fault:?}");
+        }
+    }
+
+    #[test]
+    fn stuck_sensor_trips_only_while_driving() {
+        let cfg = SupervisorConfig::new(
+            OvercurrentLimit::new(5.0, 1).unwrap(),
+            BusWindow::new(10.0, 30.0).unwrap(),
+        )
+        .with_stuck_detection(StuckDetection::new(1, 10, 0.5).unwrap());
+        let mut s = Supervisor::new(cfg, 1e-4).unwrap();
+        // Frozen reading with the drive off: never trips.
+        for _ in 0..100 {
+            assert!(s.check(&obs(0.0)).is_empty());
+        }
+        // Frozen reading at 80 % drive: the first tick compares against the last
+        // reading, so the tenth frozen tick trips.
+        let driving = Observation {
+            drive: 0.8,
+            ..obs(0.0)
+        };
+        for _ in 0..9 {
+            assert!(s.check(&driving).is_empty());
+        }
+        assert!(s.check(&driving).contains(Fault::SensorStuck));
+        // With the drive off (safe state) it can be cleared.
+        s.check(&obs(0.0));
+        s.clear().unwrap();
+    }
+
+    #[test]
+    fn moving_reading_is_not_stuck() {
+        let cfg = SupervisorConfig::new(
+            OvercurrentLimit::new(5.0, 1).unwrap(),
+            BusWindow::new(10.0, 30.0).unwrap(),
+        )
+        .with_stuck_detection(StuckDetection::new(1, 10, 0.5).unwrap());
+        let mut s = Supervisor::new(cfg, 1e-4).unwrap();
+        for k in 0..1000u16 {
+            let o = Observation {
+                counts: 2048 + 2 * (k % 2),
+                drive: 0.9,
+                ..obs(0.0)
+            };
+            assert!(s.check(&o).is_empty());
+        }
+    }
+
+    #[test]
+    fn fault_set_display_lists_causes() {
+        let set = FaultSet::EMPTY.with(Fault::SensorRail).with(Fault::Overcurrent);
+        let mut buf = heapless::String::<96>::new();
+        core::fmt::write(&mut buf, format_args!("{set}")).unwrap();
+        assert_eq!(buf.as_str(), "over-current, current sensor at a rail");
+    }
+}
