@@ -10,6 +10,7 @@
 //!   exact solution of its linear equation over each interval, so a simulated step
 //!   response carries no integration error of its own.
 //!
+//! * [`demo`]: the built-in demo machine and board (invented values).
 //! * [`runner`]: an averaged bridge and an ideal ADC around the real
 //!   [`pi_core::CurrentLoop`], with the one-sample computation delay of a real
 //!   firmware.
@@ -18,6 +19,7 @@
 //! current, turns it into ADC counts, calls [`pi_core::CurrentLoop::tick`] and
 //! applies the returned duty to the load.
 
+pub mod demo;
 pub mod rl_load;
 pub mod runner;
 

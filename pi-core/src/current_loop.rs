@@ -274,7 +274,7 @@ impl CurrentLoop {
 
     #[inline]
     fn run(&mut self, current_a: f32, input: &TickInput) -> DriveCommand {
-        let i_ref = self.setpoint.next();
+        let i_ref = self.setpoint.advance();
         let ff = &self.config.feedforward;
         let speed_term = match input.speed_rad_s {
             Some(w) => ff.back_emf_v_s_per_rad * w,

@@ -101,8 +101,9 @@ impl DutyMapping {
     /// duty limited to `max_duty`. Safe command for a low or NaN bus or NaN volts.
     #[inline]
     pub fn command(&self, volts: f32, bus_v: f32) -> DriveCommand {
-        // `!(a >= b)` is also true for NaN.
-        if !(bus_v >= self.min_bus_v) || volts.is_nan() {
+        // A NaN bus fails this comparison too.
+        let bus_ok = bus_v >= self.min_bus_v;
+        if !bus_ok || volts.is_nan() {
             return DriveCommand::SAFE;
         }
         let duty = clamp(volts / bus_v, -self.max_duty, self.max_duty);

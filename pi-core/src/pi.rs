@@ -263,17 +263,16 @@ impl PiConfig {
         if let AntiWindup::BackCalculation {
             tracking_time_s: Some(tt),
         } = anti_windup
+            && !(tt.is_finite() && tt >= self.period_s)
         {
-            if !(tt.is_finite() && tt >= self.period_s) {
-                return Err(ConfigError::new(
-                    "tracking_time_s",
-                    tt,
-                    Requirement::Within {
-                        min: self.period_s,
-                        max: f32::MAX,
-                    },
-                ));
-            }
+            return Err(ConfigError::new(
+                "tracking_time_s",
+                tt,
+                Requirement::Within {
+                    min: self.period_s,
+                    max: f32::MAX,
+                },
+            ));
         }
         Ok(Self { anti_windup, ..self })
     }

@@ -11,7 +11,7 @@
 //! let limits = SetpointLimits::new(-3.0, 3.0, 1000.0)?; // 1 A per ms
 //! let mut shaper = SetpointShaper::new(limits, 1e-4);
 //! assert_eq!(shaper.request(5.0), Ok(Acceptance::Limited { applied_a: 3.0 }));
-//! let first = shaper.next();
+//! let first = shaper.advance();
 //! assert!((first - 0.1).abs() < 1e-6);
 //! # Ok::<(), pi_core::ConfigError>(())
 //! ```
@@ -139,7 +139,7 @@ impl SetpointShaper {
 
     /// Advances one control tick and returns the setpoint for the PI, amperes.
     #[inline]
-    pub fn next(&mut self) -> f32 {
+    pub fn advance(&mut self) -> f32 {
         let lo = self.value_a - self.step_a;
         let hi = self.value_a + self.step_a;
         self.value_a = clamp(self.target_a, lo, hi);
@@ -178,7 +178,7 @@ mod tests {
         let limits = SetpointLimits::new(-5.0, 5.0, 500.0).unwrap();
         let mut s = SetpointShaper::new(limits, 1.0 / 1024.0);
         s.request(2.0).unwrap();
-        let values: [f32; 6] = core::array::from_fn(|_| s.next());
+        let values: [f32; 6] = core::array::from_fn(|_| s.advance());
         for (k, v) in values.iter().enumerate().take(4) {
             assert!((v - (k as f32 + 1.0) * 500.0 / 1024.0).abs() < 1e-6);
         }
@@ -191,7 +191,7 @@ mod tests {
         let limits = SetpointLimits::new(-5.0, 5.0, f32::INFINITY).unwrap();
         let mut s = SetpointShaper::new(limits, 1e-4);
         s.request(-4.0).unwrap();
-        assert_eq!(s.next(), -4.0);
+        assert_eq!(s.advance(), -4.0);
     }
 
     #[test]

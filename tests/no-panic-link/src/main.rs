@@ -26,7 +26,8 @@ fn panic(_: &PanicInfo) -> ! {
 
 /// What firmware does at start-up, with values the optimiser cannot fold.
 fn build() -> Option<CurrentLoop> {
-    let sense = CurrentSense::from_shunt(12, black_box(3.3), black_box(0.010), black_box(20.0), 2048.0).ok()?;
+    let sense =
+        CurrentSense::from_shunt(12, black_box(3.3), black_box(0.010), black_box(20.0), 2048.0).ok()?;
     let thermal = ThermalConfig::from_trip_class(black_box(2.0), TripClass::Class10).ok()?;
     let supervisor = SupervisorConfig::new(
         OvercurrentLimit::new(black_box(6.0), black_box(3)).ok()?,
@@ -37,8 +38,14 @@ fn build() -> Option<CurrentLoop> {
     let gains = PiGains::from_kp_ti(black_box(3.0), black_box(1.26e-3)).ok()?;
     let pi = PiConfig::new(gains, black_box(50e-6), OutputLimits::symmetric(30.0).ok()?)
         .ok()?
-        .with_rule(if black_box(true) { IntegratorRule::Tustin } else { IntegratorRule::BackwardEuler })
-        .with_anti_windup(AntiWindup::BackCalculation { tracking_time_s: None })
+        .with_rule(if black_box(true) {
+            IntegratorRule::Tustin
+        } else {
+            IntegratorRule::BackwardEuler
+        })
+        .with_anti_windup(AntiWindup::BackCalculation {
+            tracking_time_s: None,
+        })
         .ok()?;
     let config = LoopConfig::new(
         sense,
@@ -75,7 +82,11 @@ pub extern "C" fn _start() -> ! {
         let input = TickInput {
             current_counts: black_box(2100),
             bus_v: black_box(24.0),
-            speed_rad_s: if black_box(true) { Some(black_box(10.0)) } else { None },
+            speed_rad_s: if black_box(true) {
+                Some(black_box(10.0))
+            } else {
+                None
+            },
         };
         let out = cl.tick(&input);
         black_box(out);
