@@ -82,6 +82,11 @@ pub use supervisor::{
     ThermalConfig, ThermalModel, TripClass,
 };
 
+/// The README's code blocks, compiled and run as doctests.
+#[cfg(doctest)]
+#[doc = include_str!("../../README.md")]
+pub struct ReadmeDoctests;
+
 /// Everything a firmware's control module usually needs, in one `use`.
 pub mod prelude {
     pub use crate::hal::{DriveOutput, NoPin, SignMagnitude, TwoPwm};
