@@ -118,13 +118,7 @@ impl LoopConfig {
                 Requirement::Below("the overcurrent threshold_a"),
             ));
         }
-        if threshold >= sense.readable_a() {
-            return Err(ConfigError::new(
-                "threshold_a",
-                threshold,
-                Requirement::Below("the largest current the sensor reads before a rail"),
-            ));
-        }
+        check_readable(threshold, &sense)?;
         Ok(Self {
             sense,
             setpoint,
@@ -144,6 +138,18 @@ impl LoopConfig {
     pub fn period_s(&self) -> f32 {
         self.pi.period_s()
     }
+}
+
+/// The overcurrent threshold must be readable before the sensor reaches a rail.
+fn check_readable(threshold_a: f32, sense: &CurrentSense) -> Result<(), ConfigError> {
+    if threshold_a >= sense.readable_a() {
+        return Err(ConfigError::new(
+            "threshold_a",
+            threshold_a,
+            Requirement::Below("the largest current the sensor reads before a rail"),
+        ));
+    }
+    Ok(())
 }
 
 /// The loop's state; see the module notes for the transitions.
@@ -345,13 +351,7 @@ impl CurrentLoop {
             return Err(CommandError::NotWhileRunning);
         }
         let threshold = self.config.supervisor.overcurrent().threshold_a();
-        if threshold >= sense.readable_a() {
-            return Err(CommandError::Config(ConfigError::new(
-                "threshold_a",
-                threshold,
-                Requirement::Below("the largest current the sensor reads before a rail"),
-            )));
-        }
+        check_readable(threshold, &sense)?;
         self.sense = sense;
         self.config.sense = sense;
         Ok(())

@@ -85,6 +85,15 @@ pub(crate) fn finite(field: &'static str, value: f32) -> Result<f32, ConfigError
     }
 }
 
+/// Returns `value` if it is finite and not zero (either sign), else the error for `field`.
+pub(crate) fn nonzero(field: &'static str, value: f32) -> Result<f32, ConfigError> {
+    let value = finite(field, value)?;
+    if value == 0.0 {
+        return Err(ConfigError::new(field, value, Requirement::DifferentFrom("zero")));
+    }
+    Ok(value)
+}
+
 /// Returns `value` if it is finite and within `[min, max]`, else the error for `field`.
 pub(crate) fn within(field: &'static str, value: f32, min: f32, max: f32) -> Result<f32, ConfigError> {
     if value.is_finite() && value >= min && value <= max {

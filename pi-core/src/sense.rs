@@ -19,7 +19,7 @@
 //! # Ok::<(), pi_core::ConfigError>(())
 //! ```
 
-use crate::error::{ConfigError, Requirement, finite, positive, within};
+use crate::error::{ConfigError, Requirement, finite, nonzero, positive, within};
 
 /// Validated counts-to-amperes conversion for one current channel.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -37,23 +37,9 @@ impl CurrentSense {
     /// zero; negative for an inverting amplifier). The rail margin starts at 0:
     /// only readings of exactly 0 or full scale count as rail readings.
     pub fn new(adc_bits: u8, offset_counts: f32, amps_per_count: f32) -> Result<Self, ConfigError> {
-        if adc_bits == 0 || adc_bits > 16 {
-            return Err(ConfigError::new(
-                "adc_bits",
-                adc_bits as f32,
-                Requirement::Within { min: 1.0, max: 16.0 },
-            ));
-        }
-        let full_scale_counts = ((1u32 << adc_bits) - 1) as u16;
+        let full_scale_counts = full_scale(adc_bits)?;
         let offset_counts = within("offset_counts", offset_counts, 0.0, full_scale_counts as f32)?;
-        let amps_per_count = finite("amps_per_count", amps_per_count)?;
-        if amps_per_count == 0.0 {
-            return Err(ConfigError::new(
-                "amps_per_count",
-                amps_per_count,
-                Requirement::DifferentFrom("zero"),
-            ));
-        }
+        let amps_per_count = nonzero("amps_per_count", amps_per_count)?;
         Ok(Self {
             offset_counts,
             amps_per_count,
@@ -75,22 +61,9 @@ impl CurrentSense {
     ) -> Result<Self, ConfigError> {
         let vref_v = positive("vref_v", vref_v)?;
         let shunt_ohm = positive("shunt_ohm", shunt_ohm)?;
-        let gain = finite("amplifier_gain", amplifier_gain)?;
-        if gain == 0.0 {
-            return Err(ConfigError::new(
-                "amplifier_gain",
-                gain,
-                Requirement::DifferentFrom("zero"),
-            ));
-        }
-        if adc_bits == 0 || adc_bits > 16 {
-            return Err(ConfigError::new(
-                "adc_bits",
-                adc_bits as f32,
-                Requirement::Within { min: 1.0, max: 16.0 },
-            ));
-        }
-        let lsb_v = vref_v / (1u32 << adc_bits) as f32;
+        let gain = nonzero("amplifier_gain", amplifier_gain)?;
+        // One count is vref / 2^bits.
+        let lsb_v = vref_v / (full_scale(adc_bits)? as f32 + 1.0);
         Self::new(adc_bits, offset_counts, lsb_v / (shunt_ohm * gain))
     }
 
@@ -186,6 +159,18 @@ impl CurrentSense {
         let (lo, hi) = (lo.abs(), hi.abs());
         if lo < hi { lo } else { hi }
     }
+}
+
+/// Full-scale reading `2^bits - 1` of an ADC of 1 to 16 bits.
+fn full_scale(adc_bits: u8) -> Result<u16, ConfigError> {
+    if adc_bits == 0 || adc_bits > 16 {
+        return Err(ConfigError::new(
+            "adc_bits",
+            adc_bits as f32,
+            Requirement::Within { min: 1.0, max: 16.0 },
+        ));
+    }
+    Ok(((1u32 << adc_bits) - 1) as u16)
 }
 
 /// Where an offset calibration stands after a sample.
