@@ -89,7 +89,8 @@ fn run(c: &mut dyn Controller, load: &mut RlLoad, pending: &mut f32, r: f32, tic
 
 /// Recovery overshoot: the largest excursion beyond `target` in the direction of
 /// travel from `from`, as a fraction of the step (the usual step-response
-/// overshoot, Ogata, Modern Control Engineering, sec. 5-3). The current must also
+/// overshoot and 2 % settling band of Ogata, Modern Control Engineering, the
+/// transient-response chapter; section cited from memory). The current must also
 /// come within the 2 % settling band of the target inside the window; if it never
 /// does the recovery has failed and counts as infinite overshoot.
 fn overshoot(trace: &[f64], from: f64, target: f64) -> f64 {

@@ -18,7 +18,7 @@ fn main() {
 
 fn run() -> Result<(), pi_core::ConfigError> {
     println!(
-        "Ampwright demo: invented carousel motor CM-24 (1.9 ohm, 2.4 mH) on bench board rev A, 24 V bus"
+        "Ampwright demo: invented carousel motor AW-C24 (1.9 ohm, 2.4 mH) on bench board rev A, 24 V bus"
     );
     println!(
         "controller: Kp = {:.2} V/A, Ti = {:.3} ms, Ts = 50 us\n",

@@ -2,7 +2,7 @@
 //!
 //! **All values here are invented for the demo** (no real product is described).
 //! The application is the drive of a sample carousel in a bench-top incubator: a
-//! 24 V brushed gearmotor ("carousel motor CM-24") turns the carousel, and its
+//! 24 V brushed gearmotor ("carousel motor AW-C24") turns the carousel, and its
 //! torque, hence its current, is controlled by an invented controller board
 //! ("Ampwright bench board, rev A"):
 //!

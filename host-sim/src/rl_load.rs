@@ -103,7 +103,8 @@ mod tests {
     #[test]
     fn step_response_matches_the_analytic_solution() {
         // i(t) = V/R (1 - exp(-t R / L)): first-order RL circuit, any circuits
-        // textbook (e.g. Hayt, Kemmerly & Durbin, Engineering Circuit Analysis, ch. 8).
+        // textbook (e.g. Hayt, Kemmerly & Durbin, Engineering Circuit Analysis, the
+        // chapter on basic RL circuits; chapter cited from memory).
         let (r, l, v) = (1.9, 2.4e-3, 12.0);
         let mut load = RlLoad::new(r, l).unwrap();
         let dt = 50e-6;

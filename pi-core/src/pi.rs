@@ -83,9 +83,9 @@ pub enum AntiWindup {
     /// Back-calculation: feed `Ts / Tt * (u_sat - u_unsat)` back into the integrator.
     ///
     /// `tracking_time_s: None` selects the default `Tt = sqrt(Ti Ts)`, kept within
-    /// `[Ts, Ti]`. Åström and Hägglund (Advanced PID Control, ISA 2006, sec. 3.5)
-    /// advise a tracking time between `Td` and `Ti`, with `Tt = sqrt(Ti Td)` as the
-    /// rule of thumb. A PI has no `Td`; the default puts the shortest time scale the
+    /// `[Ts, Ti]`. Åström and Hägglund (Advanced PID Control, ISA 2006, the
+    /// anti-windup section of ch. 3; cited from memory) advise a tracking time
+    /// between `Td` and `Ti`, with `Tt = sqrt(Ti Td)` as the rule of thumb. A PI has no `Td`; the default puts the shortest time scale the
     /// sampled loop has, the control period `Ts`, in its place (our adaptation of
     /// their rule). With `Tt = Ti` the integrator settles at the limit itself and the
     /// recovery after a disturbance overshoots by over 20 % in the test above. A given
@@ -556,7 +556,8 @@ mod tests {
     // Discrete integrator sums of a constant error e from rest (a step at k = 1):
     // backward Euler I_k = k Ki Ts e; trapezoidal I_k = (k - 1/2) Ki Ts e, since
     // e[0] = 0 before the step. Franklin, Powell & Workman, Digital Control of
-    // Dynamic Systems, 3rd ed., ch. 6 (the two rules as recurrences).
+    // Dynamic Systems, 3rd ed., the chapter on discrete equivalents (the two rules
+    // as recurrences; chapter cited from memory).
     #[test]
     fn backward_euler_integrator_is_exact_on_constant_error() {
         let mut pi = controller(IntegratorRule::BackwardEuler, AntiWindup::Clamping);
