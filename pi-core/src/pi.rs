@@ -403,7 +403,8 @@ impl PiController {
     #[inline]
     pub fn update(&mut self, setpoint_a: f32, measured_a: f32) -> f32 {
         let l = self.config.limits;
-        self.update_within(setpoint_a, measured_a, l.min_v, l.max_v)
+        // The configured limits are validated already: no need to intersect them.
+        self.step(setpoint_a, measured_a, l.min_v, l.max_v)
     }
 
     /// One control step with limits narrower than the configured ones for this step
@@ -419,7 +420,12 @@ impl PiController {
         let min_v = if min_v.is_nan() { l.min_v } else { min_v };
         let hi = clamp(max_v, l.min_v, l.max_v);
         let lo = clamp(min_v, l.min_v, hi);
+        self.step(setpoint_a, measured_a, lo, hi)
+    }
 
+    /// The control law with limits `lo <= hi` already inside the configured range.
+    #[inline(always)]
+    fn step(&mut self, setpoint_a: f32, measured_a: f32, lo: f32, hi: f32) -> f32 {
         let e = setpoint_a - measured_a;
         if !e.is_finite() {
             self.saturation = Saturation::None;
