@@ -1,9 +1,9 @@
 //! The assembled loop on the invented demo board: closed-loop tracking, fault
 //! reactions within one tick, latching and clearing, the state machine, and the
 //! main-loop handoff. Runs the real `pi-core` code; the plant is host-sim's exact
-//! RL load with the one-sample computation delay.
+//! locked-rotor motor with the one-sample computation delay.
 
-use host_sim::demo;
+use host_sim::{Runner, TracePoint, demo};
 use pi_core::heapless::spsc::Queue;
 use pi_core::{
     Acceptance, Command, CommandError, CurrentLoop, DriveCommand, Fault, LoopState, PiGains, TickInput,
@@ -15,6 +15,12 @@ fn input(counts: u16) -> TickInput {
         bus_v: 24.0,
         speed_rad_s: None,
     }
+}
+
+/// One control tick of the demo bench (locked rotor, one-sample delay).
+fn tick(bench: &mut Runner, cl: &mut CurrentLoop) -> TracePoint {
+    bench.run_ticks(cl, 1);
+    *bench.trace().points.last().unwrap()
 }
 
 fn running() -> CurrentLoop {
@@ -42,8 +48,8 @@ fn closed_loop_reaches_the_setpoint_and_duty_stays_in_limits() {
     cl.apply(Command::SetCurrent(1.5)).unwrap();
     let mut last = 0.0;
     for _ in 0..4000 {
-        let rec = bench.tick(&mut cl);
-        assert!(rec.command.duty >= 0.0 && rec.command.duty <= 0.95);
+        let rec = tick(&mut bench, &mut cl);
+        assert!(rec.duty >= 0.0 && rec.duty <= 0.95);
         last = rec.current_a;
     }
     // Within one ADC count (4.03 mA) of the setpoint after 200 ms.
@@ -181,14 +187,14 @@ fn retune_mid_run_does_not_bump_the_current() {
     let mut bench = demo::bench();
     cl.apply(Command::SetCurrent(1.5)).unwrap();
     for _ in 0..400 {
-        bench.tick(&mut cl);
+        tick(&mut bench, &mut cl);
     }
     let before = cl.status().commanded_v;
     cl.apply(Command::Retune(PiGains::from_kp_ti(4.0, 2.0e-3).unwrap()))
         .unwrap();
     let mut worst = 0.0f64;
     for _ in 0..400 {
-        let rec = bench.tick(&mut cl);
+        let rec = tick(&mut bench, &mut cl);
         worst = worst.max((rec.current_a - 1.5).abs());
     }
     let after = cl.status().commanded_v;

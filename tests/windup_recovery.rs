@@ -20,7 +20,27 @@
 //! written here, with no anti-windup, must fail the same criterion, which shows the
 //! test can tell the difference.
 
-use host_sim::RlLoad;
+use host_sim::motor::{Motor, MotorDrive, MotorParams};
+
+/// The winding as a pure RL load (rotor held), with a series source voltage.
+struct RlLoad(Motor);
+
+impl RlLoad {
+    fn new(r: f64, l: f64) -> Result<Self, host_sim::ModelError> {
+        Motor::new(MotorParams::rl(r, l)).map(RlLoad)
+    }
+    fn current_a(&self) -> f64 {
+        self.0.current_a()
+    }
+    fn step(&mut self, terminal_v: f64, source_v: f64, dt_s: f64) -> f64 {
+        let drive = MotorDrive {
+            terminal_v: terminal_v - source_v,
+            load_torque_n_m: 0.0,
+            held: false,
+        };
+        self.0.step(&drive, dt_s)
+    }
+}
 use pi_core::{AntiWindup, IntegratorRule, OutputLimits, PiConfig, PiController, PiGains};
 
 const R_OHM: f64 = 1.9;

@@ -20,8 +20,24 @@ use pi_core::{
     OvercurrentLimit, PiConfig, PiGains, SetpointLimits, SupervisorConfig, ThermalConfig, TripClass,
 };
 
-use crate::rl_load::RlLoad;
-use crate::runner::{ClosedLoop, IdealAdc};
+use crate::bridge::{Bridge, BridgeParams};
+use crate::faults::Injectors;
+use crate::motor::{Motor, MotorParams};
+use crate::runner::{DriveChain, Runner};
+use crate::scenario::{Scenario, ScenarioError};
+use crate::sense_chain::{SenseChain, SenseParams};
+use crate::timing::{Timing, TimingParams};
+
+/// The demo scenario file, as shipped in `host-sim/scenarios/carousel_step.toml`.
+pub const SCENARIO_TOML: &str = include_str!("../scenarios/carousel_step.toml");
+
+/// The repository path of the demo scenario.
+pub const SCENARIO_PATH: &str = "host-sim/scenarios/carousel_step.toml";
+
+/// The demo scenario, parsed.
+pub fn scenario() -> Result<Scenario, ScenarioError> {
+    Scenario::parse(SCENARIO_TOML, "carousel-step")
+}
 
 /// Winding resistance, ohm (invented).
 pub const RESISTANCE_OHM: f64 = 1.9;
@@ -78,16 +94,29 @@ pub fn current_loop() -> Result<CurrentLoop, ConfigError> {
     CurrentLoop::new(loop_config()?)
 }
 
-/// The demo plant with the rotor held (no back-EMF), as on a locked-rotor bench test.
-pub fn bench() -> ClosedLoop {
-    let load = match RlLoad::new(RESISTANCE_OHM, INDUCTANCE_H) {
-        Ok(l) => l,
-        Err(_) => unreachable!("the demo constants are positive"),
+/// The demo board around the motor with its rotor held (no back-EMF), as on a
+/// locked-rotor bench test: ideal averaged bridge and ideal sense chain, sample at
+/// the start of each period (the classic one-sample delay), no events.
+pub fn bench() -> Runner {
+    let build = || -> Result<Runner, crate::model_error::ModelError> {
+        let chain = DriveChain {
+            motor: Motor::new(MotorParams::rl(RESISTANCE_OHM, INDUCTANCE_H))?,
+            bridge: Bridge::new(BridgeParams::ideal(BUS_V, 1.0 / PERIOD_S as f64))?,
+            sense: SenseChain::new(SenseParams::ideal(
+                SHUNT_OHM as f64,
+                AMP_GAIN as f64,
+                ADC_BITS,
+                VREF_V as f64,
+            ))?,
+            injectors: Injectors::default(),
+            load_profile: Vec::new(),
+            speed_feedback: false,
+        };
+        let timing = Timing::new(TimingParams::one_sample_delay(PERIOD_S as f64), PERIOD_S as f64)?;
+        Ok(Runner::new(chain, timing, Vec::new()))
     };
-    let adc = IdealAdc {
-        offset_counts: OFFSET_COUNTS as f64,
-        amps_per_count: (VREF_V as f64 / 4096.0) / (SHUNT_OHM as f64 * AMP_GAIN as f64),
-        full_scale_counts: 4095,
-    };
-    ClosedLoop::new(load, adc, BUS_V, PERIOD_S as f64)
+    match build() {
+        Ok(r) => r,
+        Err(e) => unreachable!("the demo constants are valid: {e}"),
+    }
 }

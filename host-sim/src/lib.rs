@@ -1,27 +1,61 @@
 //! # host-sim: the host side of Ampwright
 //!
-//! The simulator runs the real `pi-core` code against models of the load and the
-//! drive chain, on an ordinary computer, so that a current loop can be checked on
-//! every commit without hardware.
+//! The simulator runs the real `pi-core` current loop against models of the
+//! motor and the drive chain, on an ordinary computer, so that a current loop can
+//! be checked on every commit without hardware.
 //!
-//! The pieces so far:
+//! ```text
+//! scenario (TOML) -> validated blocks -> runner ----tick----> pi_core::CurrentLoop (the real one)
+//!                                          |  ^
+//!                  bridge -> motor -> sense chain (+ fault injectors between blocks)
+//!                                          |
+//!                                        trace -> metrics -> report (table, JSON) / plot (SVG) / CSV
+//! ```
 //!
-//! * [`rl_load`]: a resistive-inductive load with a back-EMF source, stepped with the
-//!   exact solution of its linear equation over each interval, so a simulated step
-//!   response carries no integration error of its own.
+//! **Plant blocks**, one file each, each stepped over an interval with its inputs
+//! held; none of them knows the controller, the scenario format or the plots:
 //!
-//! * [`demo`]: the built-in demo machine and board (invented values).
-//! * [`runner`]: an averaged bridge and an ideal ADC around the real
-//!   [`pi_core::CurrentLoop`], with the one-sample computation delay of a real
-//!   firmware.
+//! * [`motor`]: `L di/dt = v - R i - Ke w`, `J dw/dt = Kt i - B w - Tc - T_load`,
+//!   copper heating; the linear part is advanced with its exact solution
+//!   ([`linear`]), so an RL step carries no integration error.
+//! * [`bridge`]: sign-magnitude H-bridge with centre-aligned PWM, dead time,
+//!   switch and diode drops, slow or fast decay, a soft supply; averaged or
+//!   edge-by-edge.
+//! * [`sense_chain`]: shunt, amplifier with offset error, RC or second-order
+//!   filter, ADC with seeded noise ([`noise`]) and quantisation.
+//! * [`faults`]: injectors between blocks: sensor open, shorted or stuck, a bus
+//!   dip or surge, a locked rotor, a load step.
+//! * [`timing`]: when the firmware samples, how long it computes, when the new
+//!   duty reaches the PWM.
 //!
-//! Plant blocks know nothing about the controller: the runner reads the load's
-//! current, turns it into ADC counts, calls [`pi_core::CurrentLoop::tick`] and
-//! applies the returned duty to the load.
+//! **Running and reporting:** [`runner`] steps the blocks PWM period by PWM
+//! period and calls the controller at each sampling instant; [`trace`] is what a
+//! run leaves; [`metrics`] measures steps (rise, overshoot, settling, error, IAE)
+//! and checks a spec; [`report`] runs a [`scenario`] and makes the table and the
+//! JSON; [`plot`] draws SVG; [`cli`] is the `ampwright` command; [`demo`] is the
+//! built-in invented machine and board.
+//!
+//! Model parameters that are out of range are refused with a [`ModelError`]
+//! naming the field.
 
+pub mod bridge;
+pub mod cli;
 pub mod demo;
-pub mod rl_load;
+pub mod faults;
+pub mod linear;
+pub mod metrics;
+pub mod model_error;
+pub mod motor;
+pub mod noise;
+pub mod plot;
+pub mod report;
 pub mod runner;
+pub mod scenario;
+pub mod sense_chain;
+pub mod timing;
+pub mod trace;
 
-pub use rl_load::RlLoad;
-pub use runner::{ClosedLoop, IdealAdc, TickRecord};
+pub use model_error::ModelError;
+pub use runner::{Controller, DriveChain, Event, LinearPi, Runner};
+pub use scenario::{Scenario, ScenarioError};
+pub use trace::{Trace, TracePoint};

@@ -1,130 +1,514 @@
-//! A minimal closed-loop runner: an averaged H-bridge, an ideal ADC and an
-//! [`RlLoad`], around the real [`pi_core::CurrentLoop`].
+//! The closed-loop runner: the drive chain's blocks around a controller, stepped
+//! PWM period by PWM period.
 //!
-//! Each control tick:
+//! Each PWM period the runner
 //!
-//! 1. the ADC samples the load current (rounded to the nearest count, limited to
-//!    the ADC range);
-//! 2. [`CurrentLoop::tick`] computes the next drive command;
-//! 3. the bridge applies, for one control period, the command computed on the
-//!    *previous* tick: the one-sample computation delay of a loop that samples at
-//!    the start of a PWM period and updates the duty for the next one.
+//! 1. applies the fault injectors for that moment (supply level, held rotor,
+//!    extra load torque);
+//! 2. loads the drive command whose time has come (see [`crate::timing`]);
+//! 3. asks the bridge for the period's intervals and steps the motor through them
+//!    (switching mode), or through their mean voltage (averaged mode), stopping at
+//!    the sampling instant when a control tick falls in this period;
+//! 4. at the sampling instant converts the filtered sense signal, passes the
+//!    reading through the sensor injectors and calls the controller, which for a
+//!    real run is the real [`pi_core::CurrentLoop`]: the same code the firmware
+//!    runs, not a copy of it.
 //!
-//! The bridge is averaged: an enabled bridge puts `signed_duty * bus_v` across the
-//! load. A disabled bridge lets the current free-wheel through the switches' body
-//! diodes back into the bus, which puts `-bus_v` (against the current) across the
-//! load until the current reaches zero, where it stays (diode drops neglected).
+//! Scenario events (enable, a new setpoint, a retune) are handed to the controller
+//! before the first tick at or after their time, as the firmware's main loop would
+//! between two interrupts.
 
-use pi_core::{CurrentLoop, DriveCommand, TickInput};
+use std::collections::VecDeque;
 
-use crate::rl_load::RlLoad;
+use pi_core::{Command, CurrentLoop, DriveCommand, DutyMapping, LoopState, PiController, TickInput};
 
-/// An ideal ADC channel: `counts = round(offset + i / amps_per_count)` in `[0, full_scale]`.
+use crate::bridge::{Bridge, BridgeState, Modulation, Pattern};
+use crate::faults::Injectors;
+use crate::motor::{Motor, MotorDrive};
+use crate::sense_chain::SenseChain;
+use crate::timing::Timing;
+use crate::trace::{EdgePoint, LogEntry, Trace, TracePoint};
+
+/// What the controller is given at a sampling instant.
 #[derive(Clone, Copy, Debug, PartialEq)]
-pub struct IdealAdc {
-    /// Counts at zero current.
-    pub offset_counts: f64,
-    /// Amperes per count (the same scale the firmware's calibration assumes).
-    pub amps_per_count: f64,
-    /// Largest count.
-    pub full_scale_counts: u16,
-}
-
-impl IdealAdc {
-    /// The reading for a current.
-    pub fn sample(&self, current_a: f64) -> u16 {
-        let c = (self.offset_counts + current_a / self.amps_per_count).round();
-        c.clamp(0.0, self.full_scale_counts as f64) as u16
-    }
-}
-
-/// What happened in one tick.
-#[derive(Clone, Copy, Debug, PartialEq)]
-pub struct TickRecord {
-    /// Time at the start of the tick, seconds.
-    pub t_s: f64,
-    /// The current the ADC sampled at `t_s`, amperes (true value).
-    pub current_a: f64,
-    /// The reading it gave.
+pub struct Measurement {
+    /// The ADC reading of the current (after injected sensor faults).
     pub counts: u16,
-    /// The command the loop returned at `t_s` (applied during the next period).
-    pub command: DriveCommand,
-    /// Volts the bridge put across the load during this period.
-    pub applied_v: f64,
-}
-
-/// Load, ADC and bridge around one current loop.
-#[derive(Clone, Debug)]
-pub struct ClosedLoop {
-    /// The load.
-    pub load: RlLoad,
-    /// The current-sense ADC.
-    pub adc: IdealAdc,
-    /// Bus voltage, volts (what the firmware measures and what the bridge applies).
+    /// The filtered sense signal in amperes, before noise and quantisation (used
+    /// only by the linear reference controller).
+    pub filtered_a: f64,
+    /// Bus voltage, volts.
     pub bus_v: f64,
-    /// Series source voltage in the load (back-EMF or a disturbance), volts.
-    pub source_v: f64,
-    period_s: f64,
-    pending: DriveCommand,
-    t_s: f64,
+    /// Shaft speed, rad/s, if the firmware measures it.
+    pub speed_rad_s: Option<f64>,
 }
 
-impl ClosedLoop {
-    /// A runner at rest for a loop with control period `period_s`.
-    pub fn new(load: RlLoad, adc: IdealAdc, bus_v: f64, period_s: f64) -> Self {
+/// What the runner can read back from a controller after a tick.
+#[derive(Clone, Copy, Debug, PartialEq, Default)]
+pub struct ControllerView {
+    /// Setpoint used, amperes.
+    pub setpoint_a: f64,
+    /// Current it read, amperes.
+    pub measured_a: f64,
+    /// Voltage asked for, volts.
+    pub commanded_v: f64,
+    /// Latched fault bits.
+    pub fault_bits: u16,
+    /// 0 disabled, 1 running, 2 faulted.
+    pub state: u8,
+}
+
+/// A controller the runner can close the loop with.
+pub trait Controller {
+    /// One control tick.
+    fn tick(&mut self, m: &Measurement) -> DriveCommand;
+    /// A command from the main loop; `Err` is the refusal, in one sentence.
+    fn command(&mut self, command: Command) -> Result<(), String>;
+    /// The state after the last tick.
+    fn view(&self) -> ControllerView;
+}
+
+impl Controller for CurrentLoop {
+    fn tick(&mut self, m: &Measurement) -> DriveCommand {
+        CurrentLoop::tick(
+            self,
+            &TickInput {
+                current_counts: m.counts,
+                bus_v: m.bus_v as f32,
+                speed_rad_s: m.speed_rad_s.map(|w| w as f32),
+            },
+        )
+    }
+
+    fn command(&mut self, command: Command) -> Result<(), String> {
+        self.apply(command).map(|_| ()).map_err(|e| e.to_string())
+    }
+
+    fn view(&self) -> ControllerView {
+        let s = self.status();
+        ControllerView {
+            setpoint_a: s.setpoint_a as f64,
+            measured_a: s.current_a as f64,
+            commanded_v: s.commanded_v as f64,
+            fault_bits: s.latched.bits(),
+            state: match s.state {
+                LoopState::Disabled => 0,
+                LoopState::Running => 1,
+                LoopState::Faulted => 2,
+            },
+        }
+    }
+}
+
+/// The bare [`PiController`] closing the loop on the unquantised sense signal,
+/// with the volts turned into a duty by the bus. Its loop is linear while the
+/// output stays inside the limits, which is what a comparison with a reference
+/// library needs; real runs use [`CurrentLoop`].
+#[derive(Clone, Debug)]
+pub struct LinearPi {
+    pi: PiController,
+    duty: DutyMapping,
+    setpoint_a: f32,
+    measured_a: f32,
+    volts: f32,
+}
+
+impl LinearPi {
+    /// The controller with its duty mapping.
+    pub fn new(pi: PiController, duty: DutyMapping) -> Self {
         Self {
-            load,
-            adc,
-            bus_v,
-            source_v: 0.0,
-            period_s,
-            pending: DriveCommand::SAFE,
-            t_s: 0.0,
+            pi,
+            duty,
+            setpoint_a: 0.0,
+            measured_a: 0.0,
+            volts: 0.0,
+        }
+    }
+}
+
+impl Controller for LinearPi {
+    fn tick(&mut self, m: &Measurement) -> DriveCommand {
+        let bus = m.bus_v as f32;
+        let available = self.duty.available_v(bus);
+        self.measured_a = m.filtered_a as f32;
+        self.volts = self
+            .pi
+            .update_within(self.setpoint_a, self.measured_a, -available, available);
+        self.duty.command(self.volts, bus)
+    }
+
+    fn command(&mut self, command: Command) -> Result<(), String> {
+        match command {
+            Command::SetCurrent(a) => self.setpoint_a = a,
+            Command::Retune(g) => self.pi.retune(g),
+            _ => {}
+        }
+        Ok(())
+    }
+
+    fn view(&self) -> ControllerView {
+        ControllerView {
+            setpoint_a: self.setpoint_a as f64,
+            measured_a: self.measured_a as f64,
+            commanded_v: self.volts as f64,
+            fault_bits: 0,
+            state: 1,
+        }
+    }
+}
+
+/// A scheduled command.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Event {
+    /// When, seconds.
+    pub at_s: f64,
+    /// What.
+    pub command: Command,
+}
+
+/// The plant side of the loop.
+#[derive(Clone, Debug)]
+pub struct DriveChain {
+    /// The motor.
+    pub motor: Motor,
+    /// The bridge.
+    pub bridge: Bridge,
+    /// The current-sense chain.
+    pub sense: SenseChain,
+    /// Injected faults.
+    pub injectors: Injectors,
+    /// Load torque profile: from each time on, this torque (N m).
+    pub load_profile: Vec<(f64, f64)>,
+    /// Whether the firmware is given the shaft speed.
+    pub speed_feedback: bool,
+}
+
+/// The runner.
+#[derive(Clone, Debug)]
+pub struct Runner {
+    chain: DriveChain,
+    timing: Timing,
+    events: Vec<Event>,
+    next_event: usize,
+    pending: VecDeque<(u64, DriveCommand)>,
+    active: DriveCommand,
+    period: u64,
+    request_a: f64,
+    bus_mean_v: f64,
+    record_edges: bool,
+    trace: Trace,
+}
+
+impl Runner {
+    /// A runner at `t = 0` with the bridge off. Events are sorted by time.
+    pub fn new(chain: DriveChain, timing: Timing, mut events: Vec<Event>) -> Self {
+        events.sort_by(|a, b| a.at_s.total_cmp(&b.at_s));
+        let supply = chain.bridge.supply_v();
+        Self {
+            chain,
+            timing,
+            events,
+            next_event: 0,
+            pending: VecDeque::new(),
+            active: DriveCommand::SAFE,
+            period: 0,
+            request_a: 0.0,
+            bus_mean_v: supply,
+            record_edges: false,
+            trace: Trace::default(),
         }
     }
 
-    /// Runs one control tick of `cl` and one control period of the plant.
-    pub fn tick(&mut self, cl: &mut CurrentLoop) -> TickRecord {
-        let current_a = self.load.current_a();
-        let counts = self.adc.sample(current_a);
-        let command = cl.tick(&TickInput {
-            current_counts: counts,
-            bus_v: self.bus_v as f32,
-            speed_rad_s: None,
-        });
-        let applied = std::mem::replace(&mut self.pending, command);
-        let applied_v = self.advance(&applied);
-        let record = TickRecord {
-            t_s: self.t_s,
-            current_a,
-            counts,
-            command,
-            applied_v,
+    /// Records the current at every PWM edge as well (switching mode).
+    pub fn record_edges(mut self, on: bool) -> Self {
+        self.record_edges = on;
+        self
+    }
+
+    /// Time of the next PWM period's start, seconds.
+    pub fn time_s(&self) -> f64 {
+        self.period as f64 * self.chain.bridge.pwm_period_s()
+    }
+
+    /// The drive chain.
+    pub fn chain(&self) -> &DriveChain {
+        &self.chain
+    }
+
+    /// The drive chain, to change it mid-run.
+    pub fn chain_mut(&mut self) -> &mut DriveChain {
+        &mut self.chain
+    }
+
+    /// The trace so far.
+    pub fn trace(&self) -> &Trace {
+        &self.trace
+    }
+
+    /// Ends the run and hands over its trace.
+    pub fn into_trace(self) -> Trace {
+        self.trace
+    }
+
+    /// Runs until `duration_s`, calling `progress` with the fraction done about a
+    /// hundred times.
+    pub fn run(&mut self, controller: &mut dyn Controller, duration_s: f64, progress: &mut dyn FnMut(f64)) {
+        let t_pwm = self.chain.bridge.pwm_period_s();
+        let total = (duration_s / t_pwm).round().max(0.0) as u64;
+        let every = (total / 100).max(1);
+        while self.period < total {
+            self.step_period(controller);
+            if self.period.is_multiple_of(every) {
+                progress(self.period as f64 / total as f64);
+            }
+        }
+    }
+
+    /// Runs `ticks` control ticks.
+    pub fn run_ticks(&mut self, controller: &mut dyn Controller, ticks: u64) {
+        let end = self.period + ticks * self.timing.periods_per_tick();
+        while self.period < end {
+            self.step_period(controller);
+        }
+    }
+
+    /// Advances one PWM period.
+    pub fn step_period(&mut self, controller: &mut dyn Controller) {
+        let t_pwm = self.chain.bridge.pwm_period_s();
+        let t0 = self.period as f64 * t_pwm;
+        let nominal = self.chain.bridge.params().supply_v;
+        let supply = self.chain.injectors.supply_v(t0, nominal);
+        self.chain.bridge.set_supply_v(supply);
+        while let Some(&(at, cmd)) = self.pending.front() {
+            if at > self.period {
+                break;
+            }
+            self.active = cmd;
+            self.pending.pop_front();
+        }
+        let load = self.load_torque(t0);
+        let held = self.chain.injectors.rotor_held(t0);
+        let drive = MotorDrive {
+            terminal_v: 0.0,
+            load_torque_n_m: load,
+            held,
         };
-        self.t_s += self.period_s;
-        record
+        let pattern = self.chain.bridge.pattern(&self.active);
+        let tick_here = self.period.is_multiple_of(self.timing.periods_per_tick());
+        let sample_at = self.timing.sample_offset_s();
+        let mut bus_acc = 0.0;
+        let mut done = 0.0;
+        let mut sampled = !tick_here;
+        match self.chain.bridge.params().modulation {
+            Modulation::Switching => {
+                for iv in pattern.intervals() {
+                    let mut start = iv.start_s;
+                    if !sampled && sample_at >= start && sample_at < iv.end_s {
+                        bus_acc += self.interval(&pattern, iv.state, &drive, t0 + start, sample_at - start);
+                        done = sample_at;
+                        self.sample(
+                            controller,
+                            t0 + sample_at,
+                            bus_acc / sample_at.max(f64::MIN_POSITIVE),
+                            self.period,
+                        );
+                        sampled = true;
+                        start = sample_at;
+                    }
+                    bus_acc += self.interval(&pattern, iv.state, &drive, t0 + start, iv.end_s - start);
+                }
+            }
+            Modulation::Averaged => {
+                if !sampled {
+                    bus_acc += self.averaged(&pattern, &drive, sample_at);
+                    done = sample_at;
+                    self.sample(
+                        controller,
+                        t0 + sample_at,
+                        bus_acc / sample_at.max(f64::MIN_POSITIVE),
+                        self.period,
+                    );
+                }
+                bus_acc += self.averaged(&pattern, &drive, t_pwm - done);
+            }
+        }
+        let _ = done;
+        self.bus_mean_v = bus_acc / t_pwm;
+        self.period += 1;
     }
 
-    fn advance(&mut self, applied: &DriveCommand) -> f64 {
-        if applied.enabled {
-            let v = applied.signed_duty() as f64 * self.bus_v;
-            self.load.step(v, self.source_v, self.period_s);
-            return v;
-        }
-        let i0 = self.load.current_a();
-        if i0 == 0.0 {
+    fn load_torque(&self, t_s: f64) -> f64 {
+        let profile = self
+            .chain
+            .load_profile
+            .iter()
+            .take_while(|(at, _)| *at <= t_s)
+            .last()
+            .map_or(0.0, |(_, tq)| *tq);
+        profile + self.chain.injectors.extra_torque_n_m(t_s)
+    }
+
+    /// One interval in one bridge state; returns the integral of the bus voltage.
+    fn interval(
+        &mut self,
+        pattern: &Pattern,
+        state: BridgeState,
+        drive: &MotorDrive,
+        t_s: f64,
+        dt_s: f64,
+    ) -> f64 {
+        if dt_s <= 0.0 {
             return 0.0;
         }
-        let v = -i0.signum() * self.bus_v;
-        let i1 = self.load.step(v, self.source_v, self.period_s);
-        if i1.signum() != i0.signum() {
-            self.load.set_current_a(0.0);
+        let i0 = self.chain.motor.current_a();
+        let out = self.chain.bridge.output(state, pattern.sign, i0);
+        if state.diode_clamped() {
+            self.clamped_step(out.terminal_v, drive, dt_s);
+        } else {
+            self.chain.motor.step(
+                &MotorDrive {
+                    terminal_v: out.terminal_v,
+                    ..*drive
+                },
+                dt_s,
+            );
         }
-        v
+        let i1 = self.chain.motor.current_a();
+        self.chain.sense.advance(i1, dt_s);
+        if self.record_edges {
+            self.trace.edges.push(EdgePoint {
+                t_s: t_s + dt_s,
+                current_a: i1,
+                terminal_v: out.terminal_v,
+            });
+        }
+        out.bus_v * dt_s
     }
 
-    /// Time of the next tick, seconds.
-    pub fn time_s(&self) -> f64 {
-        self.t_s
+    /// A step in which only diodes conduct: the current stops at zero.
+    fn clamped_step(&mut self, terminal_v: f64, drive: &MotorDrive, dt_s: f64) {
+        let motor = &mut self.chain.motor;
+        let mut rest = dt_s;
+        if motor.current_a() != 0.0 {
+            match motor.time_to_zero_s(terminal_v, dt_s) {
+                None => {
+                    let i0 = motor.current_a();
+                    motor.step(&MotorDrive { terminal_v, ..*drive }, dt_s);
+                    if motor.current_a() * i0 < 0.0 {
+                        motor.stop_current();
+                    }
+                    return;
+                }
+                Some(t) => {
+                    motor.step(&MotorDrive { terminal_v, ..*drive }, t);
+                    motor.stop_current();
+                    rest = dt_s - t;
+                }
+            }
+        }
+        if rest > 0.0 {
+            // No current: the terminals float at the back-EMF.
+            let floating = motor.back_emf_v();
+            motor.step(
+                &MotorDrive {
+                    terminal_v: floating,
+                    ..*drive
+                },
+                rest,
+            );
+            motor.stop_current();
+        }
+    }
+
+    /// `dt_s` of the period at the pattern's mean voltage (averaged mode).
+    fn averaged(&mut self, pattern: &Pattern, drive: &MotorDrive, dt_s: f64) -> f64 {
+        if dt_s <= 0.0 {
+            return 0.0;
+        }
+        let i0 = self.chain.motor.current_a();
+        let t_pwm = self.chain.bridge.pwm_period_s();
+        let (mut v, mut bus) = (0.0, 0.0);
+        let mut all_clamped = true;
+        for iv in pattern.intervals() {
+            let out = self.chain.bridge.output(iv.state, pattern.sign, i0);
+            let w = (iv.end_s - iv.start_s) / t_pwm;
+            v += out.terminal_v * w;
+            bus += out.bus_v * w;
+            all_clamped &= iv.state.diode_clamped();
+        }
+        if all_clamped {
+            self.clamped_step(v, drive, dt_s);
+        } else {
+            self.chain.motor.step(
+                &MotorDrive {
+                    terminal_v: v,
+                    ..*drive
+                },
+                dt_s,
+            );
+        }
+        let i1 = self.chain.motor.current_a();
+        self.chain.sense.advance(i1, dt_s);
+        bus * dt_s
+    }
+
+    fn sample(
+        &mut self,
+        controller: &mut dyn Controller,
+        t_s: f64,
+        bus_since_period_start_v: f64,
+        period: u64,
+    ) {
+        // Commands from the main loop due by now.
+        while let Some(ev) = self.events.get(self.next_event) {
+            if ev.at_s > t_s + 1e-12 {
+                break;
+            }
+            if let Command::SetCurrent(a) = ev.command {
+                self.request_a = a as f64;
+            }
+            if let Err(why) = controller.command(ev.command) {
+                self.trace.log.push(LogEntry {
+                    t_s,
+                    text: format!("command {:?} refused: {why}", ev.command),
+                });
+            }
+            self.next_event += 1;
+        }
+        let bus_v = if self.timing.sample_offset_s() > 0.0 {
+            bus_since_period_start_v
+        } else {
+            self.bus_mean_v
+        };
+        let full_scale = ((1u32 << self.chain.sense.params().adc_bits) - 1) as u16;
+        let raw = self.chain.sense.convert();
+        let counts = self.chain.injectors.reading(t_s, raw, full_scale);
+        let speed = self.chain.motor.speed_rad_s();
+        let m = Measurement {
+            counts,
+            filtered_a: self.chain.sense.filtered_a(),
+            bus_v,
+            speed_rad_s: self.chain.speed_feedback.then_some(speed),
+        };
+        let command = controller.tick(&m);
+        let load_at = self.timing.load_period(period);
+        self.pending.push_back((load_at, command));
+        let view = controller.view();
+        self.trace.points.push(TracePoint {
+            t_s,
+            request_a: self.request_a,
+            setpoint_a: view.setpoint_a,
+            current_a: self.chain.motor.current_a(),
+            measured_a: view.measured_a,
+            counts,
+            commanded_v: view.commanded_v,
+            duty: command.signed_duty() as f64,
+            enabled: command.enabled,
+            speed_rad_s: speed,
+            bus_v,
+            winding_c: self.chain.motor.temperature_c(),
+            fault_bits: view.fault_bits,
+            state: view.state,
+        });
     }
 }

@@ -1,0 +1,398 @@
+//! An H-bridge driven sign-magnitude with centre-aligned PWM, as `pi-core`'s
+//! [`pi_core::DriveCommand`] asks for: a direction picks which leg switches, the
+//! duty cycle sets its on-time, the other leg holds its low-side switch on.
+//!
+//! # One PWM period
+//!
+//! The switching leg's high side is on for `D T`, centred in the period:
+//!
+//! ```text
+//! slow decay:  recirculate | dead | drive (D T) | dead | recirculate
+//! fast decay:  all off     |        drive (D T)        | all off
+//! ```
+//!
+//! * **drive**: the bus across the load, less two switch drops.
+//! * **recirculate** (slow decay): both low sides on; the current circulates
+//!   through them and decays slowly.
+//! * **dead**: in slow decay the switching leg changes over with both of its
+//!   switches off for the dead time; its body diode carries the current, so the
+//!   leg sits one diode drop beyond the rail the current pushes it to. Dead time is
+//!   inserted after each edge (the incoming switch is delayed). Fast decay has no
+//!   complementary switch and so no dead time.
+//! * **all off** (fast decay, or a disabled bridge): four diodes return the current
+//!   to the bus; the load sees the bus, plus two diode drops, against its current.
+//!   A current that reaches zero in a diode state stays at zero until the state
+//!   ends (discontinuous conduction); conduction driven by a back-EMF above the bus
+//!   plus two diode drops is not modelled.
+//!
+//! # Drops and the bus
+//!
+//! Each conducting switch drops `Rds_on * i` (MOSFET) or a fixed voltage against
+//! the current (bipolar transistor); each diode a fixed forward voltage. The bus is
+//! a source with a series resistance: `bus = supply - R_source * i_supply`, where
+//! `i_supply` is positive when the bus delivers power and negative when the load
+//! returns it (diode conduction into the bus). Within one interval the drops and
+//! the bus use the current at the interval's start.
+//!
+//! # Averaged and switching modes
+//!
+//! In switching mode the runner steps the load through every interval, so the
+//! current ripple is in the result. In averaged mode it applies, over the whole
+//! period, the time-weighted mean of the same intervals' voltages; ripple is gone
+//! and the simulation is several times faster.
+//!
+//! Sign convention: `terminal_v` is positive when it drives forward current.
+
+use pi_core::{Direction, DriveCommand};
+
+use crate::model_error::ModelError;
+
+/// How the runner steps the bridge.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Modulation {
+    /// The mean voltage over each PWM period.
+    Averaged,
+    /// Every edge of every PWM period.
+    Switching,
+}
+
+/// What the switching leg does during the off-time.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Decay {
+    /// Both low sides on: the current recirculates in the bridge.
+    Slow,
+    /// All switches off: the current returns to the bus through the diodes.
+    Fast,
+}
+
+/// The voltage lost across one conducting switch.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub enum SwitchDrop {
+    /// A MOSFET: `Rds_on * i`, ohm.
+    OnResistance(f64),
+    /// A bipolar transistor: a fixed saturation voltage against the current, volts.
+    Fixed(f64),
+}
+
+impl SwitchDrop {
+    fn volts(self, current_a: f64) -> f64 {
+        match self {
+            SwitchDrop::OnResistance(r) => r * current_a,
+            SwitchDrop::Fixed(v) => {
+                if current_a == 0.0 {
+                    0.0
+                } else {
+                    v * current_a.signum()
+                }
+            }
+        }
+    }
+}
+
+/// Bridge parameters, SI units.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct BridgeParams {
+    /// Open-circuit supply voltage, volts (> 0).
+    pub supply_v: f64,
+    /// Series resistance of the supply and its wiring, ohm (>= 0).
+    pub source_resistance_ohm: f64,
+    /// PWM carrier frequency, hertz (> 0).
+    pub pwm_frequency_hz: f64,
+    /// Averaged or switching.
+    pub modulation: Modulation,
+    /// Dead time at each edge in slow decay, seconds (>= 0, below half a period).
+    pub dead_time_s: f64,
+    /// Drop of each conducting switch.
+    pub switch: SwitchDrop,
+    /// Forward voltage of each body or free-wheel diode, volts (>= 0).
+    pub diode_drop_v: f64,
+    /// Off-time behaviour.
+    pub decay: Decay,
+}
+
+impl BridgeParams {
+    /// An ideal bridge: no drops, no dead time, stiff supply, slow decay, averaged.
+    pub fn ideal(supply_v: f64, pwm_frequency_hz: f64) -> Self {
+        Self {
+            supply_v,
+            source_resistance_ohm: 0.0,
+            pwm_frequency_hz,
+            modulation: Modulation::Averaged,
+            dead_time_s: 0.0,
+            switch: SwitchDrop::OnResistance(0.0),
+            diode_drop_v: 0.0,
+            decay: Decay::Slow,
+        }
+    }
+}
+
+/// The state of the bridge during one interval of a PWM period.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum BridgeState {
+    /// Bus across the load.
+    Drive,
+    /// Both low sides on.
+    Recirculate,
+    /// The switching leg in its dead time.
+    Dead,
+    /// All switches off.
+    AllOff,
+}
+
+impl BridgeState {
+    /// Diodes carry the current, so it cannot pass through zero.
+    pub fn diode_clamped(self) -> bool {
+        matches!(self, BridgeState::Dead | BridgeState::AllOff)
+    }
+}
+
+/// One interval of a PWM period.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Interval {
+    /// Start, seconds from the start of the period.
+    pub start_s: f64,
+    /// End, seconds from the start of the period.
+    pub end_s: f64,
+    /// The bridge's state.
+    pub state: BridgeState,
+}
+
+/// The intervals of one PWM period, in order (at most five).
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Pattern {
+    intervals: [Interval; 5],
+    len: usize,
+    /// +1 forward, -1 reverse.
+    pub sign: f64,
+}
+
+impl Pattern {
+    /// The intervals.
+    pub fn intervals(&self) -> &[Interval] {
+        &self.intervals[..self.len]
+    }
+
+    fn push(&mut self, start_s: f64, end_s: f64, state: BridgeState) {
+        if end_s > start_s && self.len < self.intervals.len() {
+            self.intervals[self.len] = Interval {
+                start_s,
+                end_s,
+                state,
+            };
+            self.len += 1;
+        }
+    }
+
+    /// The interval containing time `t_s` into the period.
+    pub fn state_at(&self, t_s: f64) -> BridgeState {
+        self.intervals()
+            .iter()
+            .find(|iv| t_s < iv.end_s)
+            .or(self.intervals().last())
+            .map_or(BridgeState::AllOff, |iv| iv.state)
+    }
+}
+
+/// What the bridge puts on the load in one state.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Output {
+    /// Voltage across the load, volts (positive drives forward current).
+    pub terminal_v: f64,
+    /// Current drawn from the supply, amperes (negative: returned to it).
+    pub supply_a: f64,
+    /// Voltage at the bridge's supply terminals, volts.
+    pub bus_v: f64,
+}
+
+/// The bridge.
+#[derive(Clone, Debug)]
+pub struct Bridge {
+    params: BridgeParams,
+    supply_v: f64,
+}
+
+impl Bridge {
+    /// A bridge from validated parameters.
+    pub fn new(params: BridgeParams) -> Result<Self, ModelError> {
+        ModelError::positive("bridge.supply_v", params.supply_v)?;
+        ModelError::non_negative("bridge.source_resistance_ohm", params.source_resistance_ohm)?;
+        ModelError::positive("bridge.pwm_frequency_hz", params.pwm_frequency_hz)?;
+        ModelError::non_negative("bridge.dead_time_s", params.dead_time_s)?;
+        if params.dead_time_s >= 0.5 / params.pwm_frequency_hz {
+            return Err(ModelError::new(
+                "bridge.dead_time_s",
+                params.dead_time_s,
+                "shorter than half a PWM period",
+            ));
+        }
+        match params.switch {
+            SwitchDrop::OnResistance(r) => ModelError::non_negative("bridge.switch.rds_on_ohm", r)?,
+            SwitchDrop::Fixed(v) => ModelError::non_negative("bridge.switch.drop_v", v)?,
+        };
+        ModelError::non_negative("bridge.diode_drop_v", params.diode_drop_v)?;
+        Ok(Self {
+            supply_v: params.supply_v,
+            params,
+        })
+    }
+
+    /// The parameters.
+    pub fn params(&self) -> &BridgeParams {
+        &self.params
+    }
+
+    /// PWM period, seconds.
+    pub fn pwm_period_s(&self) -> f64 {
+        1.0 / self.params.pwm_frequency_hz
+    }
+
+    /// Present open-circuit supply voltage, volts.
+    pub fn supply_v(&self) -> f64 {
+        self.supply_v
+    }
+
+    /// Changes the supply voltage (a bus dip or surge), volts.
+    pub fn set_supply_v(&mut self, supply_v: f64) {
+        self.supply_v = supply_v;
+    }
+
+    /// The intervals of one PWM period for a drive command. A disabled command, and
+    /// a duty of zero in fast decay, leave everything off; a duty of one drives the
+    /// whole period. The duty is taken as given (the controller limits it).
+    pub fn pattern(&self, command: &DriveCommand) -> Pattern {
+        let t = self.pwm_period_s();
+        let sign = match command.direction {
+            Direction::Forward => 1.0,
+            Direction::Reverse => -1.0,
+        };
+        let mut p = Pattern {
+            intervals: [Interval {
+                start_s: 0.0,
+                end_s: 0.0,
+                state: BridgeState::AllOff,
+            }; 5],
+            len: 0,
+            sign,
+        };
+        let duty = if command.duty.is_finite() {
+            (command.duty as f64).clamp(0.0, 1.0)
+        } else {
+            0.0
+        };
+        if !command.enabled {
+            p.push(0.0, t, BridgeState::AllOff);
+            return p;
+        }
+        let off = match self.params.decay {
+            Decay::Slow => BridgeState::Recirculate,
+            Decay::Fast => BridgeState::AllOff,
+        };
+        if duty <= 0.0 {
+            p.push(0.0, t, off);
+            return p;
+        }
+        if duty >= 1.0 {
+            p.push(0.0, t, BridgeState::Drive);
+            return p;
+        }
+        let t1 = 0.5 * (1.0 - duty) * t;
+        let t2 = 0.5 * (1.0 + duty) * t;
+        let td = match self.params.decay {
+            Decay::Slow => self.params.dead_time_s,
+            Decay::Fast => 0.0,
+        };
+        p.push(0.0, t1, off);
+        let on_start = (t1 + td).min(t2);
+        p.push(t1, on_start, BridgeState::Dead);
+        p.push(on_start, t2, BridgeState::Drive);
+        let off_start = (t2 + td).min(t);
+        p.push(t2, off_start, BridgeState::Dead);
+        p.push(off_start, t, off);
+        p
+    }
+
+    /// What the bridge puts on the load in `state` with the load carrying
+    /// `current_a`, for the direction `sign` (+1 forward, -1 reverse).
+    pub fn output(&self, state: BridgeState, sign: f64, current_a: f64) -> Output {
+        let p = &self.params;
+        // Work in the frame of the switching leg: i' = sign * i, v = sign * v'.
+        let i = sign * current_a;
+        let vd = p.diode_drop_v;
+        let drop = p.switch.volts(i);
+        // Supply current first (it sets the bus), then the voltage on the load.
+        let supply_a = match state {
+            BridgeState::Drive => i,
+            BridgeState::Recirculate => 0.0,
+            BridgeState::Dead => i.min(0.0),
+            BridgeState::AllOff => -i.abs(),
+        };
+        let bus_v = self.supply_v - p.source_resistance_ohm * supply_a;
+        let v = match state {
+            BridgeState::Drive => bus_v - 2.0 * drop,
+            BridgeState::Recirculate => -2.0 * drop,
+            BridgeState::Dead if i >= 0.0 => -vd - drop,
+            BridgeState::Dead => bus_v + vd - drop,
+            BridgeState::AllOff if i > 0.0 => -(bus_v + 2.0 * vd),
+            BridgeState::AllOff if i < 0.0 => bus_v + 2.0 * vd,
+            BridgeState::AllOff => 0.0,
+        };
+        Output {
+            terminal_v: sign * v,
+            supply_a,
+            bus_v,
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn cmd(duty: f32, direction: Direction) -> DriveCommand {
+        DriveCommand {
+            duty,
+            direction,
+            enabled: true,
+        }
+    }
+
+    #[test]
+    fn slow_decay_pattern_is_centred_with_dead_time_after_each_edge() {
+        let mut p = BridgeParams::ideal(24.0, 20e3);
+        p.dead_time_s = 1e-6;
+        let b = Bridge::new(p).unwrap();
+        let pat = b.pattern(&cmd(0.5, Direction::Forward));
+        let states: Vec<_> = pat.intervals().iter().map(|iv| iv.state).collect();
+        use BridgeState::*;
+        assert_eq!(states, [Recirculate, Dead, Drive, Dead, Recirculate]);
+        let iv = pat.intervals();
+        assert!((iv[0].end_s - 12.5e-6).abs() < 1e-15);
+        assert!((iv[2].start_s - 13.5e-6).abs() < 1e-15 && (iv[2].end_s - 37.5e-6).abs() < 1e-15);
+        assert!((iv[4].end_s - 50e-6).abs() < 1e-15);
+    }
+
+    #[test]
+    fn drops_and_diodes_act_against_the_current() {
+        let mut p = BridgeParams::ideal(24.0, 20e3);
+        p.switch = SwitchDrop::OnResistance(0.1);
+        p.diode_drop_v = 0.7;
+        p.source_resistance_ohm = 0.5;
+        let b = Bridge::new(p).unwrap();
+        let on = b.output(BridgeState::Drive, 1.0, 2.0);
+        assert!((on.bus_v - 23.0).abs() < 1e-12 && (on.terminal_v - (23.0 - 0.4)).abs() < 1e-12);
+        let rev = b.output(BridgeState::Drive, -1.0, -2.0);
+        assert!((rev.terminal_v + 22.6).abs() < 1e-12 && rev.supply_a == 2.0);
+        let dead = b.output(BridgeState::Dead, 1.0, 2.0);
+        assert!((dead.terminal_v - (-0.7 - 0.2)).abs() < 1e-12);
+        let off = b.output(BridgeState::AllOff, 1.0, 2.0);
+        assert_eq!(off.supply_a, -2.0);
+        assert!((off.terminal_v + (25.0 + 1.4)).abs() < 1e-12);
+    }
+
+    #[test]
+    fn refuses_dead_time_of_half_a_period() {
+        let mut p = BridgeParams::ideal(24.0, 20e3);
+        p.dead_time_s = 25e-6;
+        assert_eq!(Bridge::new(p).unwrap_err().field, "bridge.dead_time_s");
+    }
+}

@@ -1,0 +1,66 @@
+//! The `ampwright` command: argument parsing and dispatch, one file per command.
+//! Commands only parse, call the library and print.
+//!
+//! Exit codes: 0 done (and the spec, if any, met); 1 the run finished but a spec
+//! criterion failed; 2 bad input (arguments, scenario) or an output that could
+//! not be written.
+
+pub mod progress;
+pub mod simulate;
+
+use std::ffi::OsString;
+use std::path::PathBuf;
+
+use clap::{Parser, Subcommand};
+
+/// Current control for brushed motors and other R-L loads: simulate the real
+/// firmware loop against a model of the drive chain.
+#[derive(Debug, Parser)]
+#[command(name = "ampwright", version, about)]
+pub struct Args {
+    /// What to do.
+    #[command(subcommand)]
+    pub command: CommandArgs,
+}
+
+/// The commands.
+#[derive(Debug, Subcommand)]
+pub enum CommandArgs {
+    /// Run a scenario file through the real pi-core loop: metrics table and
+    /// verdict on stdout, trace CSV and step-response SVG in the output folder.
+    Simulate(SimulateArgs),
+}
+
+/// Arguments of `ampwright simulate`.
+#[derive(Debug, clap::Args)]
+pub struct SimulateArgs {
+    /// The scenario (TOML); start from host-sim/scenarios/carousel_step.toml.
+    pub scenario: PathBuf,
+    /// Folder for the CSV and SVG files (created if missing).
+    #[arg(long, default_value = "ampwright-out")]
+    pub out: PathBuf,
+    /// Print the report as JSON instead of the table.
+    #[arg(long)]
+    pub json: bool,
+    /// Also write the current at every PWM edge (switching bridge only) as CSV.
+    #[arg(long)]
+    pub edges: bool,
+    /// No progress bar.
+    #[arg(long)]
+    pub quiet: bool,
+}
+
+/// Runs the command line; returns the process exit code.
+pub fn main(args: impl IntoIterator<Item = OsString>) -> i32 {
+    let args = match Args::try_parse_from(args) {
+        Ok(a) => a,
+        Err(e) => {
+            let code = if e.use_stderr() { 2 } else { 0 };
+            let _ = e.print();
+            return code;
+        }
+    };
+    match args.command {
+        CommandArgs::Simulate(a) => simulate::run(&a),
+    }
+}

@@ -1,0 +1,130 @@
+//! `ampwright simulate <scenario>`.
+
+use std::fs;
+use std::io::Write;
+use std::path::Path;
+
+use crate::cli::SimulateArgs;
+use crate::cli::progress::Progress;
+use crate::plot::step_response_svg;
+use crate::report;
+use crate::scenario::Scenario;
+
+/// Runs the command; returns the exit code.
+pub fn run(args: &SimulateArgs) -> i32 {
+    let scenario = match Scenario::load(&args.scenario) {
+        Ok(s) => s,
+        Err(e) => {
+            eprintln!("ampwright: {e}");
+            return 2;
+        }
+    };
+    let mut bar = Progress::new(
+        &format!("simulating {}", scenario.name),
+        !args.quiet && !args.json,
+    );
+    let result = report::run(&scenario, &mut |f| bar.update(f));
+    bar.finish();
+    let (mut trace, rep) = match result {
+        Ok(r) => r,
+        Err(e) => {
+            eprintln!("ampwright: {e}");
+            return 2;
+        }
+    };
+    if args.edges {
+        // A second run recording the edges: the first stays as fast as possible.
+        match scenario.start() {
+            Ok((mut cl, runner)) => {
+                let mut runner = runner.record_edges(true);
+                runner.run(&mut cl, scenario.duration_s, &mut |_| {});
+                trace.edges = runner.into_trace().edges;
+            }
+            Err(e) => {
+                eprintln!("ampwright: {e}");
+                return 2;
+            }
+        }
+    }
+    let written = match write_files(args, &scenario, &trace, &rep) {
+        Ok(w) => w,
+        Err(e) => {
+            eprintln!("ampwright: {e}");
+            return 2;
+        }
+    };
+    let mut out = std::io::stdout().lock();
+    let text = if args.json {
+        rep.json()
+    } else {
+        let mut t = rep.table();
+        for w in &written {
+            t.push_str(&format!("wrote {w}\n"));
+        }
+        t
+    };
+    // A closed pipe (`| head`) is not an error worth a message.
+    let _ = writeln!(out, "{}", text.trim_end());
+    match rep.pass {
+        Some(false) => 1,
+        _ => 0,
+    }
+}
+
+fn write_files(
+    args: &SimulateArgs,
+    scenario: &Scenario,
+    trace: &crate::trace::Trace,
+    rep: &report::Report,
+) -> Result<Vec<String>, String> {
+    let dir = &args.out;
+    fs::create_dir_all(dir).map_err(|e| {
+        format!(
+            "cannot create the output folder {}: {e}; choose another with --out",
+            dir.display()
+        )
+    })?;
+    let stem = safe_stem(&scenario.name);
+    let mut written = Vec::new();
+    let csv = dir.join(format!("{stem}.csv"));
+    write_with(&csv, |f| trace.write_csv(f))?;
+    written.push(csv.display().to_string());
+    let svg = dir.join(format!("{stem}.svg"));
+    let doc = step_response_svg(trace, &report::plot_of(scenario, rep));
+    write_with(&svg, |f| f.write_all(doc.as_bytes()))?;
+    written.push(svg.display().to_string());
+    if args.edges {
+        let edges = dir.join(format!("{stem}-edges.csv"));
+        write_with(&edges, |f| trace.write_edges_csv(f))?;
+        written.push(edges.display().to_string());
+    }
+    Ok(written)
+}
+
+fn write_with(path: &Path, body: impl FnOnce(&mut dyn Write) -> std::io::Result<()>) -> Result<(), String> {
+    let fail = |e: std::io::Error| {
+        format!(
+            "cannot write {}: {e}; check the folder given with --out",
+            path.display()
+        )
+    };
+    let file = fs::File::create(path).map_err(fail)?;
+    let mut w = std::io::BufWriter::new(file);
+    body(&mut w).map_err(fail)?;
+    w.flush().map_err(fail)
+}
+
+/// A file name from a scenario name: letters, digits, `-` and `_` kept.
+fn safe_stem(name: &str) -> String {
+    let s: String = name
+        .chars()
+        .map(|c| {
+            if c.is_ascii_alphanumeric() || c == '-' || c == '_' {
+                c
+            } else {
+                '_'
+            }
+        })
+        .collect();
+    if s.is_empty() { "scenario".into() } else { s }
+}

@@ -1,0 +1,237 @@
+//! Exact discretisation of small linear time-invariant blocks.
+//!
+//! A block `x' = A x + B u` whose input is held (zero-order hold) or varies
+//! linearly (first-order hold) over an interval `dt` has an exact solution in terms
+//! of the matrix exponential of an augmented matrix (Van Loan's construction; see
+//! Franklin, Powell & Workman, *Digital Control of Dynamic Systems*, the chapter on
+//! discrete equivalents, chapter cited from memory):
+//!
+//! ```text
+//! exp([[A, B], [0, 0]] dt)           = [[Phi, Gamma], [0, I]]            (hold)
+//! exp([[A, B, 0], [0, 0, I], [0, 0, 0]] dt) = [[Phi, Gamma1, Gamma2], ...]  (ramp)
+//! x(dt) = Phi x(0) + Gamma1 u(0) + Gamma2 (u(dt) - u(0)) / dt
+//! ```
+//!
+//! The exponential is computed by scaling and squaring with a truncated Taylor
+//! series, in f64. The blocks here have at most two states and two inputs, so the
+//! augmented matrices are at most 6 x 6 and the result is accurate to rounding.
+
+// Matrix code reads best with explicit indices.
+#![allow(clippy::needless_range_loop)]
+
+/// The largest augmented matrix used by the blocks (2 states + 2 inputs + 2 slopes).
+pub const MAX_DIM: usize = 6;
+
+/// A square matrix of dimension `n <= MAX_DIM`, stored densely.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Matrix {
+    n: usize,
+    a: [[f64; MAX_DIM]; MAX_DIM],
+}
+
+impl Matrix {
+    /// The `n x n` zero matrix; `n` is capped at [`MAX_DIM`].
+    pub fn zeros(n: usize) -> Self {
+        Self {
+            n: n.min(MAX_DIM),
+            a: [[0.0; MAX_DIM]; MAX_DIM],
+        }
+    }
+
+    /// The `n x n` identity.
+    pub fn identity(n: usize) -> Self {
+        let mut m = Self::zeros(n);
+        for k in 0..m.n {
+            m.a[k][k] = 1.0;
+        }
+        m
+    }
+
+    /// Dimension.
+    pub fn dim(&self) -> usize {
+        self.n
+    }
+
+    /// Element `(row, col)`.
+    pub fn get(&self, row: usize, col: usize) -> f64 {
+        self.a[row][col]
+    }
+
+    /// Sets element `(row, col)`.
+    pub fn set(&mut self, row: usize, col: usize, value: f64) {
+        self.a[row][col] = value;
+    }
+
+    fn scaled(&self, s: f64) -> Self {
+        let mut m = *self;
+        for row in m.a.iter_mut().take(self.n) {
+            for v in row.iter_mut().take(self.n) {
+                *v *= s;
+            }
+        }
+        m
+    }
+
+    fn mul(&self, other: &Self) -> Self {
+        let n = self.n;
+        let mut m = Self::zeros(n);
+        for i in 0..n {
+            for k in 0..n {
+                let aik = self.a[i][k];
+                if aik == 0.0 {
+                    continue;
+                }
+                for j in 0..n {
+                    m.a[i][j] += aik * other.a[k][j];
+                }
+            }
+        }
+        m
+    }
+
+    fn add(&self, other: &Self) -> Self {
+        let mut m = *self;
+        for i in 0..self.n {
+            for j in 0..self.n {
+                m.a[i][j] += other.a[i][j];
+            }
+        }
+        m
+    }
+
+    fn norm_inf(&self) -> f64 {
+        (0..self.n)
+            .map(|i| (0..self.n).map(|j| self.a[i][j].abs()).sum::<f64>())
+            .fold(0.0, f64::max)
+    }
+
+    /// The matrix exponential `exp(self)`.
+    pub fn exp(&self) -> Self {
+        // Scale so the norm is at most 1/2, sum 18 Taylor terms (the remainder is
+        // below 0.5^19 / 19! relative), then square back.
+        let norm = self.norm_inf();
+        let mut squarings = 0u32;
+        let mut scale = 1.0;
+        while norm * scale > 0.5 && squarings < 60 {
+            scale *= 0.5;
+            squarings += 1;
+        }
+        let x = self.scaled(scale);
+        let mut term = Self::identity(self.n);
+        let mut sum = term;
+        for k in 1..=18 {
+            term = term.mul(&x).scaled(1.0 / k as f64);
+            sum = sum.add(&term);
+        }
+        for _ in 0..squarings {
+            sum = sum.mul(&sum);
+        }
+        sum
+    }
+}
+
+/// A linear block discretised exactly for one interval with a first-order hold on
+/// its inputs: `x(dt) = phi x + gamma0 u(0) + gamma1 u(dt)`.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Discrete<const N: usize, const M: usize> {
+    /// State transition over the interval.
+    pub phi: [[f64; N]; N],
+    /// Weight of the input at the start of the interval.
+    pub gamma_start: [[f64; M]; N],
+    /// Weight of the input at the end of the interval.
+    pub gamma_end: [[f64; M]; N],
+}
+
+impl<const N: usize, const M: usize> Discrete<N, M> {
+    /// Discretises `x' = a x + b u` over `dt_s` seconds with the input varying
+    /// linearly from `u(0)` to `u(dt)`. With `u(0) = u(dt)` this is the zero-order
+    /// hold. `N + 2 M` must not exceed [`MAX_DIM`] (checked at compile time).
+    pub fn first_order_hold(a: [[f64; N]; N], b: [[f64; M]; N], dt_s: f64) -> Self {
+        const { assert!(N + 2 * M <= MAX_DIM) };
+        let dim = N + 2 * M;
+        let mut big = Matrix::zeros(dim);
+        for i in 0..N {
+            for j in 0..N {
+                big.set(i, j, a[i][j] * dt_s);
+            }
+            for j in 0..M {
+                big.set(i, N + j, b[i][j] * dt_s);
+            }
+        }
+        // The input ramps: u' = (u(dt) - u(0)) / dt, carried as a state with slope 1 in
+        // the scaled time; its block is the identity times dt / dt = 1.
+        for j in 0..M {
+            big.set(N + j, N + M + j, 1.0);
+        }
+        let e = big.exp();
+        let mut out = Self {
+            phi: [[0.0; N]; N],
+            gamma_start: [[0.0; M]; N],
+            gamma_end: [[0.0; M]; N],
+        };
+        for i in 0..N {
+            for j in 0..N {
+                out.phi[i][j] = e.get(i, j);
+            }
+            for j in 0..M {
+                let hold = e.get(i, N + j);
+                let ramp = e.get(i, N + M + j);
+                // x = phi x0 + hold u0 + ramp (u1 - u0)
+                out.gamma_start[i][j] = hold - ramp;
+                out.gamma_end[i][j] = ramp;
+            }
+        }
+        out
+    }
+
+    /// Advances a state over the interval.
+    pub fn step(&self, x: &[f64; N], u_start: &[f64; M], u_end: &[f64; M]) -> [f64; N] {
+        let mut next = [0.0; N];
+        for i in 0..N {
+            let mut v = 0.0;
+            for j in 0..N {
+                v += self.phi[i][j] * x[j];
+            }
+            for j in 0..M {
+                v += self.gamma_start[i][j] * u_start[j] + self.gamma_end[i][j] * u_end[j];
+            }
+            next[i] = v;
+        }
+        next
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn scalar_exponential_and_hold() {
+        // x' = -a x + u: Phi = exp(-a dt), hold gain (1 - exp(-a dt)) / a.
+        let (a, dt) = (3.0, 0.2);
+        let d = Discrete::<1, 1>::first_order_hold([[-a]], [[1.0]], dt);
+        assert!((d.phi[0][0] - (-a * dt).exp()).abs() < 1e-15);
+        let hold = d.gamma_start[0][0] + d.gamma_end[0][0];
+        assert!((hold - (1.0 - (-a * dt).exp()) / a).abs() < 1e-15);
+    }
+
+    #[test]
+    fn ramp_input_matches_the_closed_form() {
+        // x' = -a x + t/dt (ramp from 0 to 1) from x = 0:
+        // x(dt) = 1/a - (1 - exp(-a dt)) / (a^2 dt).
+        let (a, dt) = (2.0, 0.5);
+        let d = Discrete::<1, 1>::first_order_hold([[-a]], [[1.0]], dt);
+        let x = d.step(&[0.0], &[0.0], &[1.0])[0];
+        let exact = 1.0 / a - (1.0 - (-a * dt).exp()) / (a * a * dt);
+        assert!((x - exact).abs() < 1e-14, "{x} vs {exact}");
+    }
+
+    #[test]
+    fn rotation_is_exact() {
+        // x'' = -w^2 x: exp over dt is a rotation by w dt.
+        let (w, dt) = (50.0, 0.1);
+        let d = Discrete::<2, 1>::first_order_hold([[0.0, 1.0], [-w * w, 0.0]], [[0.0], [0.0]], dt);
+        assert!((d.phi[0][0] - (w * dt).cos()).abs() < 1e-12);
+        assert!((d.phi[0][1] - (w * dt).sin() / w).abs() < 1e-12);
+    }
+}

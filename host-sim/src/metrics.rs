@@ -1,0 +1,310 @@
+//! Step-response metrics and the verdict against a spec.
+//!
+//! Each setpoint step in a run (a change of the requested current) is measured
+//! on the true winding current at the sampling instants, from the time of the
+//! request until the next request or the end of the run. With `y0` the request
+//! before the step, `y1` the one after and `c(t) = (i(t) - y0) / (y1 - y0)`:
+//!
+//! | metric | definition |
+//! |---|---|
+//! | rise time | time from `c = 0.1` to `c = 0.9`, first crossings, interpolated linearly between samples |
+//! | overshoot | `max(c) - 1`, in percent, 0 if the response never passes 1 |
+//! | peak | the largest excursion of `i` in the step's direction, and its time after the request |
+//! | settling time | time after the request from which `c` stays within `1 +/- 0.02` |
+//! | steady-state error | `y1` minus the mean of `i` over the last 10 % of the window |
+//! | IAE | integral of `|y1 - i|` over the window (rectangle rule on the samples), A s |
+//!
+//! These are the textbook definitions of Ogata, *Modern Control Engineering*
+//! (the chapter on transient-response analysis, chapter cited from memory), with
+//! two choices of ours made explicit: Ogata allows a 0-100 % rise time for
+//! underdamped systems, we always use 10-90 %; and overshoot and the settling band
+//! are taken relative to the requested value `y1` rather than to the final value
+//! of the response. With integral action the two coincide; a steady-state error
+//! therefore shows in its own column instead of shifting the others.
+//! python-control's `step_info` uses 10-90 % and a 2 % band as well, but takes the
+//! final value of the response (or the system's DC gain) as reference and reports
+//! sample times without interpolation.
+
+use crate::trace::TracePoint;
+
+/// Settling band, fraction of the step.
+pub const SETTLING_BAND: f64 = 0.02;
+
+/// The metrics of one step.
+#[derive(Clone, Copy, Debug, PartialEq, serde::Serialize)]
+pub struct StepMetrics {
+    /// Time of the request, seconds.
+    pub at_s: f64,
+    /// Request before, amperes.
+    pub from_a: f64,
+    /// Request after, amperes.
+    pub to_a: f64,
+    /// 10-90 % rise time, seconds (`None`: 90 % not reached).
+    pub rise_time_s: Option<f64>,
+    /// Overshoot, percent of the step.
+    pub overshoot_pct: f64,
+    /// Peak current, amperes.
+    pub peak_a: f64,
+    /// Time of the peak after the request, seconds.
+    pub peak_time_s: f64,
+    /// 2 % settling time, seconds (`None`: not settled inside the window).
+    pub settling_time_s: Option<f64>,
+    /// Steady-state error, amperes (request minus the final mean).
+    pub steady_state_error_a: f64,
+    /// Integral of the absolute error, ampere-seconds.
+    pub iae_a_s: f64,
+}
+
+/// Finds the steps in a trace and measures each. Steps smaller than
+/// `min_step_a` are skipped.
+pub fn steps(points: &[TracePoint], min_step_a: f64) -> Vec<StepMetrics> {
+    let mut out = Vec::new();
+    let mut k = 1;
+    while k < points.len() {
+        let (y0, y1) = (points[k - 1].request_a, points[k].request_a);
+        if (y1 - y0).abs() < min_step_a.max(1e-12) {
+            k += 1;
+            continue;
+        }
+        let end = (k + 1..points.len())
+            .find(|&j| points[j].request_a != y1)
+            .unwrap_or(points.len());
+        if let Some(m) = measure(&points[k..end], y0, y1) {
+            out.push(m);
+        }
+        k = end;
+    }
+    out
+}
+
+/// Metrics of one step window; `window[0]` is the first tick with the new request.
+pub fn measure(window: &[TracePoint], y0: f64, y1: f64) -> Option<StepMetrics> {
+    let first = window.first()?;
+    let t0 = first.t_s;
+    let dy = y1 - y0;
+    let c = |p: &TracePoint| (p.current_a - y0) / dy;
+    let cross = |level: f64| -> Option<f64> {
+        let mut prev: Option<&TracePoint> = None;
+        for p in window {
+            if c(p) >= level {
+                return Some(match prev {
+                    Some(q) if c(q) < level => {
+                        let f = (level - c(q)) / (c(p) - c(q));
+                        q.t_s + f * (p.t_s - q.t_s)
+                    }
+                    _ => p.t_s,
+                });
+            }
+            prev = Some(p);
+        }
+        None
+    };
+    let rise_time_s = match (cross(0.1), cross(0.9)) {
+        (Some(a), Some(b)) => Some(b - a),
+        _ => None,
+    };
+    let (peak_idx, peak_c) =
+        window
+            .iter()
+            .enumerate()
+            .map(|(j, p)| (j, c(p)))
+            .fold(
+                (0, f64::NEG_INFINITY),
+                |best, x| if x.1 > best.1 { x } else { best },
+            );
+    let overshoot_pct = ((peak_c - 1.0) * 100.0).max(0.0);
+    let outside = window.iter().rposition(|p| (c(p) - 1.0).abs() > SETTLING_BAND);
+    let settling_time_s = match outside {
+        None => Some(0.0),
+        Some(j) if j + 1 >= window.len() => None,
+        Some(j) => {
+            // Interpolate the last entry into the band between samples j and j + 1.
+            let (q, p) = (&window[j], &window[j + 1]);
+            let (eq, ep) = ((c(q) - 1.0).abs(), (c(p) - 1.0).abs());
+            let f = if eq > ep {
+                (eq - SETTLING_BAND) / (eq - ep)
+            } else {
+                1.0
+            };
+            Some(q.t_s + f * (p.t_s - q.t_s) - t0)
+        }
+    };
+    let tail_start = window.len() - (window.len() / 10).max(1);
+    let tail = &window[tail_start..];
+    let tail_mean = tail.iter().map(|p| p.current_a).sum::<f64>() / tail.len() as f64;
+    let dt = if window.len() > 1 {
+        window[1].t_s - window[0].t_s
+    } else {
+        0.0
+    };
+    let iae_a_s = window.iter().map(|p| (y1 - p.current_a).abs() * dt).sum();
+    Some(StepMetrics {
+        at_s: t0,
+        from_a: y0,
+        to_a: y1,
+        rise_time_s,
+        overshoot_pct,
+        peak_a: window[peak_idx].current_a,
+        peak_time_s: window[peak_idx].t_s - t0,
+        settling_time_s,
+        steady_state_error_a: y1 - tail_mean,
+        iae_a_s,
+    })
+}
+
+/// Limits a step response should meet; each one is optional.
+#[derive(Clone, Copy, Debug, PartialEq, Default, serde::Serialize)]
+pub struct Spec {
+    /// Largest 10-90 % rise time, seconds.
+    pub rise_time_s: Option<f64>,
+    /// Largest overshoot, percent.
+    pub overshoot_pct: Option<f64>,
+    /// Largest 2 % settling time, seconds.
+    pub settling_time_s: Option<f64>,
+    /// Largest steady-state error magnitude, amperes.
+    pub steady_state_error_a: Option<f64>,
+}
+
+/// One criterion checked on one step.
+#[derive(Clone, Debug, PartialEq, serde::Serialize)]
+pub struct Check {
+    /// Which step (index into the step list).
+    pub step: usize,
+    /// What was checked (`rise_time_s`, ...).
+    pub criterion: &'static str,
+    /// The value measured (`None`: never reached, counts as a failure).
+    pub measured: Option<f64>,
+    /// The limit.
+    pub limit: f64,
+    /// Limit minus measured (positive: inside the spec).
+    pub margin: Option<f64>,
+    /// Whether the criterion holds.
+    pub pass: bool,
+}
+
+/// Checks every step against the spec.
+pub fn verdict(steps: &[StepMetrics], spec: &Spec) -> Vec<Check> {
+    let mut out = Vec::new();
+    for (k, s) in steps.iter().enumerate() {
+        let items: [(&'static str, Option<f64>, Option<f64>); 4] = [
+            ("rise_time_s", spec.rise_time_s, s.rise_time_s),
+            ("overshoot_pct", spec.overshoot_pct, Some(s.overshoot_pct)),
+            ("settling_time_s", spec.settling_time_s, s.settling_time_s),
+            (
+                "steady_state_error_a",
+                spec.steady_state_error_a,
+                Some(s.steady_state_error_a.abs()),
+            ),
+        ];
+        for (criterion, limit, measured) in items {
+            let Some(limit) = limit else { continue };
+            let margin = measured.map(|m| limit - m);
+            out.push(Check {
+                step: k,
+                criterion,
+                measured,
+                limit,
+                margin,
+                pass: margin.is_some_and(|m| m >= 0.0),
+            });
+        }
+    }
+    out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn point(t_s: f64, request_a: f64, current_a: f64) -> TracePoint {
+        TracePoint {
+            t_s,
+            request_a,
+            setpoint_a: request_a,
+            current_a,
+            measured_a: current_a,
+            counts: 0,
+            commanded_v: 0.0,
+            duty: 0.0,
+            enabled: true,
+            speed_rad_s: 0.0,
+            bus_v: 24.0,
+            winding_c: 20.0,
+            fault_bits: 0,
+            state: 1,
+        }
+    }
+
+    #[test]
+    fn first_order_step_has_the_textbook_rise_and_settling_times() {
+        // c(t) = 1 - exp(-t / tau): rise 10-90 % = tau ln 9, 2 % settling =
+        // tau ln 50 (Ogata, first-order systems; chapter cited from memory).
+        let tau = 1e-3;
+        let dt = 1e-6;
+        let mut pts = vec![point(0.0, 0.0, 0.0)];
+        for k in 0..20_000 {
+            let t = k as f64 * dt;
+            pts.push(point(t, 2.0, 2.0 * (1.0 - (-t / tau).exp())));
+        }
+        let s = steps(&pts, 0.01);
+        assert_eq!(s.len(), 1);
+        let m = s[0];
+        assert!((m.rise_time_s.unwrap() - tau * 9f64.ln()).abs() < 2e-9);
+        assert!((m.settling_time_s.unwrap() - tau * 50f64.ln()).abs() < 2e-9);
+        assert_eq!(m.overshoot_pct, 0.0);
+        // IAE of a first-order step: step * tau (less the truncated tail).
+        assert!((m.iae_a_s - 2.0 * tau).abs() < 2.0 * tau * 1e-3);
+    }
+
+    #[test]
+    fn second_order_overshoot_matches_the_damping_formula() {
+        // Mp = exp(-zeta pi / sqrt(1 - zeta^2)) (Ogata, second-order systems).
+        let (zeta, wn) = (0.5f64, 2000.0f64);
+        let wd = wn * (1.0 - zeta * zeta).sqrt();
+        let dt = 1e-6;
+        let mut pts = vec![point(0.0, 0.0, 0.0)];
+        for k in 0..20_000 {
+            let t = k as f64 * dt;
+            let c = 1.0
+                - (-zeta * wn * t).exp()
+                    * ((wd * t).cos() + zeta / (1.0 - zeta * zeta).sqrt() * (wd * t).sin());
+            pts.push(point(t, 1.0, c));
+        }
+        let m = steps(&pts, 0.01)[0];
+        let expected = 100.0 * (-zeta * std::f64::consts::PI / (1.0 - zeta * zeta).sqrt()).exp();
+        assert!(
+            (m.overshoot_pct - expected).abs() < 1e-3,
+            "{} vs {expected}",
+            m.overshoot_pct
+        );
+        // Peak time pi / wd.
+        assert!((m.peak_time_s - std::f64::consts::PI / wd).abs() < 2e-6);
+    }
+
+    #[test]
+    fn verdict_reports_margins_and_unreached_targets() {
+        let m = StepMetrics {
+            at_s: 0.0,
+            from_a: 0.0,
+            to_a: 1.0,
+            rise_time_s: Some(0.4e-3),
+            overshoot_pct: 6.0,
+            peak_a: 1.06,
+            peak_time_s: 1e-3,
+            settling_time_s: None,
+            steady_state_error_a: -0.001,
+            iae_a_s: 0.0,
+        };
+        let spec = Spec {
+            rise_time_s: Some(0.5e-3),
+            overshoot_pct: Some(5.0),
+            settling_time_s: Some(2e-3),
+            steady_state_error_a: Some(0.01),
+        };
+        let v = verdict(&[m], &spec);
+        let pass: Vec<_> = v.iter().map(|c| c.pass).collect();
+        assert_eq!(pass, [true, false, false, true]);
+        assert!((v[0].margin.unwrap() - 0.1e-3).abs() < 1e-12);
+        assert_eq!(v[2].measured, None);
+    }
+}

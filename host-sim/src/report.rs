@@ -1,0 +1,245 @@
+//! Running a scenario and telling what happened: the metrics table and verdict
+//! for people, the same content as JSON for scripts.
+
+use std::fmt::Write;
+
+use pi_core::Fault;
+use serde::Serialize;
+
+use crate::bridge::Modulation;
+use crate::metrics::{self, Check, StepMetrics};
+use crate::plot::StepPlot;
+use crate::scenario::{Scenario, ScenarioError};
+use crate::trace::Trace;
+
+/// Steps smaller than this are not measured, amperes.
+pub const MIN_STEP_A: f64 = 1e-3;
+
+/// The result of one run, ready to print or serialise.
+#[derive(Clone, Debug, Serialize)]
+pub struct Report {
+    /// Scenario name.
+    pub name: String,
+    /// Scenario description.
+    pub description: String,
+    /// `averaged` or `switching`.
+    pub bridge_mode: &'static str,
+    /// PWM frequency, hertz.
+    pub pwm_frequency_hz: f64,
+    /// Control rate, hertz.
+    pub control_rate_hz: f64,
+    /// Simulated time, seconds.
+    pub duration_s: f64,
+    /// Control ticks run.
+    pub ticks: usize,
+    /// Each setpoint step, measured.
+    pub steps: Vec<StepMetrics>,
+    /// Each spec criterion on each step.
+    pub checks: Vec<Check>,
+    /// All checks pass (`None` when the scenario has no spec or no step).
+    pub pass: Option<bool>,
+    /// Faults latched at any time, in bit order.
+    pub faults_latched: Vec<String>,
+    /// The first fault and when it latched, seconds.
+    pub first_fault: Option<(String, f64)>,
+    /// Refused commands and notes.
+    pub log: Vec<(f64, String)>,
+    /// Largest true current magnitude, amperes.
+    pub peak_current_a: f64,
+    /// Largest duty magnitude.
+    pub peak_duty: f64,
+    /// Highest winding temperature, C.
+    pub max_winding_c: f64,
+}
+
+/// Runs a scenario with the real `pi-core` loop; `progress` gets the fraction done.
+pub fn run(scenario: &Scenario, progress: &mut dyn FnMut(f64)) -> Result<(Trace, Report), ScenarioError> {
+    let (mut cl, mut runner) = scenario.start()?;
+    runner.run(&mut cl, scenario.duration_s, progress);
+    let trace = runner.into_trace();
+    let report = summarise(scenario, &trace);
+    Ok((trace, report))
+}
+
+/// The report of a finished run.
+pub fn summarise(scenario: &Scenario, trace: &Trace) -> Report {
+    let steps = metrics::steps(&trace.points, MIN_STEP_A);
+    let checks = metrics::verdict(&steps, &scenario.spec);
+    let pass = (!checks.is_empty()).then(|| checks.iter().all(|c| c.pass));
+    let all_bits = trace.points.iter().fold(0u16, |acc, p| acc | p.fault_bits);
+    let faults_latched = Fault::ALL
+        .iter()
+        .filter(|f| all_bits & (**f as u16) != 0)
+        .map(|f| f.describe().to_string())
+        .collect();
+    let first_fault = trace.points.iter().find(|p| p.fault_bits != 0).and_then(|p| {
+        Fault::ALL
+            .iter()
+            .find(|f| p.fault_bits & (**f as u16) != 0)
+            .map(|f| (f.describe().to_string(), p.t_s))
+    });
+    let bridge = scenario.chain.bridge.params();
+    Report {
+        name: scenario.name.clone(),
+        description: scenario.description.clone(),
+        bridge_mode: match bridge.modulation {
+            Modulation::Averaged => "averaged",
+            Modulation::Switching => "switching",
+        },
+        pwm_frequency_hz: bridge.pwm_frequency_hz,
+        control_rate_hz: 1.0 / scenario.timing.control_period_s(),
+        duration_s: scenario.duration_s,
+        ticks: trace.points.len(),
+        steps,
+        checks,
+        pass,
+        faults_latched,
+        first_fault,
+        log: trace.log.iter().map(|e| (e.t_s, e.text.clone())).collect(),
+        peak_current_a: trace.points.iter().map(|p| p.current_a.abs()).fold(0.0, f64::max),
+        peak_duty: trace.points.iter().map(|p| p.duty.abs()).fold(0.0, f64::max),
+        max_winding_c: trace
+            .points
+            .iter()
+            .map(|p| p.winding_c)
+            .fold(f64::NEG_INFINITY, f64::max),
+    }
+}
+
+/// What the step plot needs from a scenario and its report.
+pub fn plot_of(scenario: &Scenario, report: &Report) -> StepPlot {
+    StepPlot {
+        title: format!("{}: step response ({} bridge)", report.name, report.bridge_mode),
+        steps: report.steps.clone(),
+        spec: scenario.spec,
+        overcurrent_a: Some(scenario.overcurrent_a),
+        max_duty: Some(scenario.max_duty),
+    }
+}
+
+fn ms(v: Option<f64>) -> String {
+    v.map_or("-".into(), |s| format!("{:.3}", s * 1e3))
+}
+
+impl Report {
+    /// The metrics table and verdict, as plain text.
+    pub fn table(&self) -> String {
+        let mut s = String::new();
+        let _ = writeln!(s, "{}", self.name);
+        if !self.description.is_empty() {
+            let _ = writeln!(s, "{}", self.description);
+        }
+        let _ = writeln!(
+            s,
+            "{} bridge at {:.0} Hz PWM, control at {:.0} Hz, {} ticks over {:.3} ms\n",
+            self.bridge_mode,
+            self.pwm_frequency_hz,
+            self.control_rate_hz,
+            self.ticks,
+            self.duration_s * 1e3
+        );
+        let _ = writeln!(
+            s,
+            "{:>4} {:>8} {:>7} {:>7} {:>8} {:>9} {:>9} {:>7} {:>8} {:>9} {:>10}",
+            "step",
+            "at_ms",
+            "from_a",
+            "to_a",
+            "rise_ms",
+            "overshoot",
+            "settle_ms",
+            "peak_a",
+            "peak_ms",
+            "ss_err_a",
+            "iae_mA_s"
+        );
+        for (k, m) in self.steps.iter().enumerate() {
+            let _ = writeln!(
+                s,
+                "{:>4} {:>8.3} {:>7.3} {:>7.3} {:>8} {:>8.2}% {:>9} {:>7.3} {:>8.3} {:>9.4} {:>10.4}",
+                k,
+                m.at_s * 1e3,
+                m.from_a,
+                m.to_a,
+                ms(m.rise_time_s),
+                m.overshoot_pct,
+                ms(m.settling_time_s),
+                m.peak_a,
+                m.peak_time_s * 1e3,
+                m.steady_state_error_a,
+                m.iae_a_s * 1e3
+            );
+        }
+        if self.steps.is_empty() {
+            let _ = writeln!(s, "   (no setpoint step in this run)");
+        }
+        if !self.checks.is_empty() {
+            let _ = writeln!(s, "\nspec");
+            for c in &self.checks {
+                let (measured, limit, margin) = match c.criterion {
+                    "rise_time_s" | "settling_time_s" => (
+                        ms(c.measured),
+                        format!("{:.3} ms", c.limit * 1e3),
+                        ms(c.margin) + " ms",
+                    ),
+                    "overshoot_pct" => (
+                        c.measured.map_or("-".into(), |v| format!("{v:.2} %")),
+                        format!("{:.2} %", c.limit),
+                        c.margin.map_or("-".into(), |v| format!("{v:.2} %")),
+                    ),
+                    _ => (
+                        c.measured.map_or("-".into(), |v| format!("{v:.4} A")),
+                        format!("{:.4} A", c.limit),
+                        c.margin.map_or("-".into(), |v| format!("{v:.4} A")),
+                    ),
+                };
+                let _ = writeln!(
+                    s,
+                    "  step {} {:<21} {:>11} limit {:>10}  margin {:>11}  {}",
+                    c.step,
+                    c.criterion,
+                    measured,
+                    limit,
+                    margin,
+                    if c.pass { "pass" } else { "FAIL" }
+                );
+            }
+        }
+        let _ = writeln!(
+            s,
+            "\npeak current {:.3} A, peak duty {:.3}, winding up to {:.2} C",
+            self.peak_current_a, self.peak_duty, self.max_winding_c
+        );
+        match &self.first_fault {
+            None => {
+                let _ = writeln!(s, "faults: none latched");
+            }
+            Some((what, t)) => {
+                let _ = writeln!(
+                    s,
+                    "faults: first {what} at {:.3} ms; latched during the run: {}",
+                    t * 1e3,
+                    self.faults_latched.join(", ")
+                );
+            }
+        }
+        for (t, text) in &self.log {
+            let _ = writeln!(s, "note at {:.3} ms: {text}", t * 1e3);
+        }
+        let _ = writeln!(
+            s,
+            "verdict: {}",
+            match self.pass {
+                None => "no spec to check",
+                Some(true) => "PASS, every step meets the spec",
+                Some(false) => "FAIL, see the spec lines marked FAIL",
+            }
+        );
+        s
+    }
+
+    /// The report as JSON.
+    pub fn json(&self) -> String {
+        serde_json::to_string_pretty(self).unwrap_or_else(|e| format!("{{\"error\": \"{e}\"}}"))
+    }
+}
