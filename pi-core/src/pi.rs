@@ -331,6 +331,8 @@ struct Coefficients {
     kp: f32,
     /// `Kp * b`.
     kp_b: f32,
+    /// `Kp * (1 - b)`.
+    kp_unweighted: f32,
     /// `Ki Ts` (backward Euler) or `Ki Ts / 2` (Tustin).
     ki_step: f32,
     /// `Ts / Tt` for back-calculation, unused for clamping.
@@ -351,6 +353,7 @@ impl Coefficients {
         Self {
             kp: g.kp_v_per_a,
             kp_b: g.kp_v_per_a * g.setpoint_weight,
+            kp_unweighted: g.kp_v_per_a * (1.0 - g.setpoint_weight),
             ki_step: if tustin { 0.5 * ki_ts } else { ki_ts },
             tracking,
             tustin,
@@ -454,7 +457,20 @@ impl PiController {
             };
             (clamp(p + integ, lo, hi), integ)
         };
-        self.integrator_v = clamp(integ, lo, hi);
+        let saturated = unsat > hi || unsat < lo;
+        // Unsaturated, the integrator is exactly `u - P` and left alone, so the
+        // loop is linear and a retune is bumpless. Saturated, it is held inside
+        // the range the output needs at steady state for this setpoint,
+        // `[lo, hi] + Kp (1 - b) r` (with a setpoint weight b < 1 the weighted
+        // proportional part keeps `-Kp (1 - b) r` at steady state, which the
+        // integrator must make up), so a long saturation leaves it where the
+        // steady state can use it.
+        self.integrator_v = if saturated {
+            let offset = k.kp_unweighted * setpoint_a;
+            clamp(integ, lo + offset, hi + offset)
+        } else {
+            integ
+        };
         self.prev_error_a = e;
         self.last_setpoint_a = setpoint_a;
         self.last_measured_a = measured_a;
@@ -479,7 +495,14 @@ impl PiController {
         self.config.gains = gains;
         self.k = Coefficients::from_config(&self.config);
         let p_new = self.k.kp_b * self.last_setpoint_a - self.k.kp * self.last_measured_a;
-        self.integrator_v = clamp(self.last_output_v - p_new, self.last_min_v, self.last_max_v);
+        let integ = self.last_output_v - p_new;
+        // As in an update: held to the steady-state range only after a saturated one.
+        self.integrator_v = if self.saturation == Saturation::None {
+            integ
+        } else {
+            let offset = self.k.kp_unweighted * self.last_setpoint_a;
+            clamp(integ, self.last_min_v + offset, self.last_max_v + offset)
+        };
     }
 
     /// Validates `Kp` and `Ti` and retunes bumplessly; on error the old gains stay.
@@ -502,7 +525,8 @@ impl PiController {
         let r = finite("setpoint_a", setpoint_a)?;
         let y = finite("measured_a", measured_a)?;
         let p = self.k.kp_b * r - self.k.kp * y;
-        self.integrator_v = clamp(u - p, l.min_v, l.max_v);
+        let offset = self.k.kp_unweighted * r;
+        self.integrator_v = clamp(u - p, l.min_v + offset, l.max_v + offset);
         self.prev_error_a = r - y;
         self.last_setpoint_a = r;
         self.last_measured_a = y;
@@ -522,7 +546,9 @@ impl PiController {
         self.saturation = Saturation::None;
     }
 
-    /// Integrator state in volts (always inside the output range).
+    /// Integrator state in volts. After an unsaturated update it is `u - P`;
+    /// after a saturated one it lies inside the output range shifted by
+    /// `Kp (1 - b) r` (the output range itself when `b = 1`).
     pub fn integrator_v(&self) -> f32 {
         self.integrator_v
     }
@@ -742,5 +768,26 @@ mod tests {
             tracking_time_s: Some(1e-5),
         };
         assert_eq!(cfg.with_anti_windup(bad).unwrap_err().field, "tracking_time_s");
+    }
+
+    #[test]
+    fn setpoint_weight_below_one_still_reaches_the_setpoint() {
+        // A static plant y(k+1) = u(k) / 5 ohm at r = 1 A needs u = 5 V. With
+        // b = 0.2 and Kp = 2 the proportional part sits at -1.6 V there, so the
+        // integrator must hold 6.6 V: more than the 6 V output limit, which is
+        // fine because the output (5 V) is inside it.
+        let gains = PiGains::from_kp_ki(2.0, 10_000.0)
+            .unwrap()
+            .with_setpoint_weight(0.2)
+            .unwrap();
+        let cfg = PiConfig::new(gains, 50e-6, OutputLimits::symmetric(6.0).unwrap()).unwrap();
+        let mut pi = PiController::new(cfg);
+        let mut y = 0.0;
+        for _ in 0..2000 {
+            let u = pi.update(1.0, y);
+            y = u / 5.0;
+        }
+        assert!((y - 1.0).abs() < 1e-4, "settled at {y} A");
+        assert!((pi.integrator_v() - 6.6).abs() < 1e-3, "{}", pi.integrator_v());
     }
 }

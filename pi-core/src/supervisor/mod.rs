@@ -238,6 +238,9 @@ impl StuckDetection {
     /// `band_counts` or less while the drive magnitude (duty fraction) was at least
     /// `min_drive` (in `(0, 1]`). A real sensor shows noise and ripple of a few
     /// counts, so pick a band below that and enough ticks to span several PWM periods.
+    /// Once the fault has latched it stays present, whatever the drive, until the
+    /// reading moves by more than the band, so it cannot be cleared while the
+    /// sensor is still frozen.
     pub fn new(band_counts: u16, ticks: u16, min_drive: f32) -> Result<Self, ConfigError> {
         if ticks == 0 {
             return Err(ConfigError::new("stuck_ticks", 0.0, Requirement::AtLeastOne));
@@ -383,7 +386,10 @@ impl Supervisor {
                     Some(last) => obs.counts.abs_diff(last) <= s.band_counts,
                     None => false,
                 };
-                let watching = obs.drive >= s.min_drive;
+                // Once latched, a frozen reading keeps the fault present even with
+                // the bridge off (no drive), so it cannot be cleared until the
+                // reading moves again.
+                let watching = obs.drive >= s.min_drive || self.latched.contains(Fault::SensorStuck);
                 self.stuck_count = if frozen && watching {
                     self.stuck_count.saturating_add(1)
                 } else {
@@ -426,17 +432,19 @@ impl Supervisor {
     }
 
     /// Clears the latch, or refuses with the causes still present (the latch then
-    /// stays as it was). The thermal model keeps its heat either way.
+    /// stays as it was). The thermal model keeps its heat either way, and counts
+    /// in progress (samples over the threshold, frozen readings) go on, so
+    /// repeated clears cannot hold off a trip.
     pub fn clear(&mut self) -> Result<(), ClearRefused> {
         if !self.present.is_empty() {
             return Err(ClearRefused {
                 still_present: self.present,
             });
         }
+        // The detection counters stay: a clear while an overcurrent or a frozen
+        // reading is still being counted must not postpone its trip.
         self.latched = FaultSet::EMPTY;
         self.first = None;
-        self.over_count = 0;
-        self.stuck_count = 0;
         Ok(())
     }
 
@@ -604,8 +612,17 @@ mod tests {
             assert!(s.check(&driving).is_empty());
         }
         assert!(s.check(&driving).contains(Fault::SensorStuck));
-        // With the drive off (safe state) it can be cleared.
-        s.check(&obs(0.0));
+        // In the safe state (drive off) the reading is still frozen: the cause is
+        // still present and clearing is refused.
+        for _ in 0..20 {
+            s.check(&obs(0.0));
+        }
+        assert!(s.clear().unwrap_err().still_present.contains(Fault::SensorStuck));
+        // Once the reading moves again it can be cleared.
+        s.check(&Observation {
+            counts: 2100,
+            ..obs(0.0)
+        });
         s.clear().unwrap();
     }
 
@@ -633,5 +650,38 @@ mod tests {
         let mut buf = heapless::String::<96>::new();
         core::fmt::write(&mut buf, format_args!("{set}")).unwrap();
         assert_eq!(buf.as_str(), "over-current, current sensor at a rail");
+    }
+
+    #[test]
+    fn a_clear_while_counting_does_not_postpone_the_trip() {
+        let cfg = SupervisorConfig::new(
+            OvercurrentLimit::new(5.0, 4).unwrap(),
+            BusWindow::new(10.0, 30.0).unwrap(),
+        )
+        .with_stuck_detection(StuckDetection::new(0, 6, 0.5).unwrap());
+        // Overcurrent: three samples over, an accepted-or-refused clear, the fourth trips.
+        let mut s = Supervisor::new(cfg, 1e-4).unwrap();
+        for _ in 0..3 {
+            assert!(s.check(&obs(6.0)).is_empty());
+        }
+        let _ = s.clear();
+        assert!(s.check(&obs(6.0)).contains(Fault::Overcurrent));
+        // Stuck: a clear (accepted: nothing present yet) in the middle of the count.
+        let mut s = Supervisor::new(cfg, 1e-4).unwrap();
+        let driving = Observation {
+            drive: 0.8,
+            ..obs(0.0)
+        };
+        for _ in 0..4 {
+            assert!(s.check(&driving).is_empty());
+        }
+        // Four readings: three frozen comparisons counted so far.
+        s.clear().unwrap();
+        assert!(s.check(&driving).is_empty());
+        assert!(s.check(&driving).is_empty());
+        assert!(
+            s.check(&driving).contains(Fault::SensorStuck),
+            "trips on the 6th frozen comparison"
+        );
     }
 }
