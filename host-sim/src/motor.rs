@@ -99,11 +99,13 @@ impl MotorParams {
     }
 
     fn validate(&self) -> Result<(), ModelError> {
-        ModelError::positive("motor.resistance_ohm", self.resistance_ohm)?;
-        ModelError::positive("motor.inductance_h", self.inductance_h)?;
-        ModelError::non_negative("motor.back_emf_v_s_per_rad", self.back_emf_v_s_per_rad)?;
-        ModelError::non_negative("motor.torque_n_m_per_a", self.torque_n_m_per_a)?;
-        ModelError::positive("motor.inertia_kg_m2", self.inertia_kg_m2)?;
+        // Ranges wide enough for any winding on a bench, narrow enough that the
+        // exact discretisation stays within f64.
+        ModelError::within("motor.resistance_ohm", self.resistance_ohm, 1e-6, 1e6)?;
+        ModelError::within("motor.inductance_h", self.inductance_h, 1e-9, 1e3)?;
+        ModelError::within("motor.back_emf_v_s_per_rad", self.back_emf_v_s_per_rad, 0.0, 1e3)?;
+        ModelError::within("motor.torque_n_m_per_a", self.torque_n_m_per_a, 0.0, 1e3)?;
+        ModelError::within("motor.inertia_kg_m2", self.inertia_kg_m2, 1e-12, 1e3)?;
         ModelError::non_negative("motor.viscous_n_m_s_per_rad", self.viscous_n_m_s_per_rad)?;
         ModelError::non_negative("motor.coulomb_n_m", self.coulomb_n_m)?;
         if let Some(t) = &self.thermal {
@@ -255,6 +257,13 @@ impl Motor {
         self.resistance_ohm = self.resistance_at(self.temperature_c);
         self.heat_acc_a2s = 0.0;
         self.heat_time_s = 0.0;
+    }
+
+    /// Sets the shaft speed, rad/s (to start from a moving operating point).
+    pub fn set_speed_rad_s(&mut self, speed_rad_s: f64) {
+        if speed_rad_s.is_finite() && !self.params.locked_rotor {
+            self.speed_rad_s = speed_rad_s;
+        }
     }
 
     /// Sets the current to exactly zero (a diode stopped conducting).

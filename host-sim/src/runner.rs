@@ -10,7 +10,8 @@
 //!    (switching mode), or through their mean voltage (averaged mode), stopping at
 //!    the sampling instant when a control tick falls in this period;
 //! 4. at the sampling instant converts the filtered sense signal, passes the
-//!    reading through the sensor injectors and calls the controller, which for a
+//!    reading through the sensor injectors, reads the bus voltage at the bridge
+//!    at that instant (ideal bus sensing), and calls the controller, which for a
 //!    real run is the real [`pi_core::CurrentLoop`]: the same code the firmware
 //!    runs, not a copy of it.
 //!
@@ -194,7 +195,6 @@ pub struct Runner {
     active: DriveCommand,
     period: u64,
     request_a: f64,
-    bus_mean_v: f64,
     record_edges: bool,
     trace: Trace,
 }
@@ -203,7 +203,6 @@ impl Runner {
     /// A runner at `t = 0` with the bridge off. Events are sorted by time.
     pub fn new(chain: DriveChain, timing: Timing, mut events: Vec<Event>) -> Self {
         events.sort_by(|a, b| a.at_s.total_cmp(&b.at_s));
-        let supply = chain.bridge.supply_v();
         Self {
             chain,
             timing,
@@ -213,7 +212,6 @@ impl Runner {
             active: DriveCommand::SAFE,
             period: 0,
             request_a: 0.0,
-            bus_mean_v: supply,
             record_edges: false,
             trace: Trace::default(),
         }
@@ -296,45 +294,53 @@ impl Runner {
         let pattern = self.chain.bridge.pattern(&self.active);
         let tick_here = self.period.is_multiple_of(self.timing.periods_per_tick());
         let sample_at = self.timing.sample_offset_s();
-        let mut bus_acc = 0.0;
-        let mut done = 0.0;
-        let mut sampled = !tick_here;
         match self.chain.bridge.params().modulation {
             Modulation::Switching => {
+                let mut sampled = !tick_here;
                 for iv in pattern.intervals() {
                     let mut start = iv.start_s;
                     if !sampled && sample_at >= start && sample_at < iv.end_s {
-                        bus_acc += self.interval(&pattern, iv.state, &drive, t0 + start, sample_at - start);
-                        done = sample_at;
-                        self.sample(
-                            controller,
-                            t0 + sample_at,
-                            bus_acc / sample_at.max(f64::MIN_POSITIVE),
-                            self.period,
-                        );
+                        self.interval(&pattern, iv.state, &drive, t0 + start, sample_at - start);
+                        let bus = self.bus_now(&pattern, Some(sample_at));
+                        self.sample(controller, t0 + sample_at, bus, self.period);
                         sampled = true;
                         start = sample_at;
                     }
-                    bus_acc += self.interval(&pattern, iv.state, &drive, t0 + start, iv.end_s - start);
+                    self.interval(&pattern, iv.state, &drive, t0 + start, iv.end_s - start);
                 }
             }
             Modulation::Averaged => {
-                if !sampled {
-                    bus_acc += self.averaged(&pattern, &drive, sample_at);
+                let mut done = 0.0;
+                if tick_here {
+                    self.averaged(&pattern, &drive, sample_at);
                     done = sample_at;
-                    self.sample(
-                        controller,
-                        t0 + sample_at,
-                        bus_acc / sample_at.max(f64::MIN_POSITIVE),
-                        self.period,
-                    );
+                    let bus = self.bus_now(&pattern, None);
+                    self.sample(controller, t0 + sample_at, bus, self.period);
                 }
-                bus_acc += self.averaged(&pattern, &drive, t_pwm - done);
+                self.averaged(&pattern, &drive, t_pwm - done);
             }
         }
-        let _ = done;
-        self.bus_mean_v = bus_acc / t_pwm;
         self.period += 1;
+    }
+
+    /// The bus voltage at the bridge now: in the state at `at_s` into the period
+    /// (switching mode), or the period's mean at the present current (averaged).
+    fn bus_now(&self, pattern: &Pattern, at_s: Option<f64>) -> f64 {
+        let i = self.chain.motor.current_a();
+        let bridge = &self.chain.bridge;
+        match at_s {
+            Some(t) => bridge.output(pattern.state_at(t), pattern.sign, i).bus_v,
+            None => {
+                let t_pwm = bridge.pwm_period_s();
+                pattern
+                    .intervals()
+                    .iter()
+                    .map(|iv| {
+                        bridge.output(iv.state, pattern.sign, i).bus_v * (iv.end_s - iv.start_s) / t_pwm
+                    })
+                    .sum()
+            }
+        }
     }
 
     fn load_torque(&self, t_s: f64) -> f64 {
@@ -348,17 +354,10 @@ impl Runner {
         profile + self.chain.injectors.extra_torque_n_m(t_s)
     }
 
-    /// One interval in one bridge state; returns the integral of the bus voltage.
-    fn interval(
-        &mut self,
-        pattern: &Pattern,
-        state: BridgeState,
-        drive: &MotorDrive,
-        t_s: f64,
-        dt_s: f64,
-    ) -> f64 {
+    /// One interval in one bridge state.
+    fn interval(&mut self, pattern: &Pattern, state: BridgeState, drive: &MotorDrive, t_s: f64, dt_s: f64) {
         if dt_s <= 0.0 {
-            return 0.0;
+            return;
         }
         let i0 = self.chain.motor.current_a();
         let out = self.chain.bridge.output(state, pattern.sign, i0);
@@ -382,7 +381,6 @@ impl Runner {
                 terminal_v: out.terminal_v,
             });
         }
-        out.bus_v * dt_s
     }
 
     /// A step in which only diodes conduct: the current stops at zero.
@@ -421,19 +419,18 @@ impl Runner {
     }
 
     /// `dt_s` of the period at the pattern's mean voltage (averaged mode).
-    fn averaged(&mut self, pattern: &Pattern, drive: &MotorDrive, dt_s: f64) -> f64 {
+    fn averaged(&mut self, pattern: &Pattern, drive: &MotorDrive, dt_s: f64) {
         if dt_s <= 0.0 {
-            return 0.0;
+            return;
         }
         let i0 = self.chain.motor.current_a();
         let t_pwm = self.chain.bridge.pwm_period_s();
-        let (mut v, mut bus) = (0.0, 0.0);
+        let mut v = 0.0;
         let mut all_clamped = true;
         for iv in pattern.intervals() {
             let out = self.chain.bridge.output(iv.state, pattern.sign, i0);
             let w = (iv.end_s - iv.start_s) / t_pwm;
             v += out.terminal_v * w;
-            bus += out.bus_v * w;
             all_clamped &= iv.state.diode_clamped();
         }
         if all_clamped {
@@ -449,16 +446,9 @@ impl Runner {
         }
         let i1 = self.chain.motor.current_a();
         self.chain.sense.advance(i1, dt_s);
-        bus * dt_s
     }
 
-    fn sample(
-        &mut self,
-        controller: &mut dyn Controller,
-        t_s: f64,
-        bus_since_period_start_v: f64,
-        period: u64,
-    ) {
+    fn sample(&mut self, controller: &mut dyn Controller, t_s: f64, bus_v: f64, period: u64) {
         // Commands from the main loop due by now.
         while let Some(ev) = self.events.get(self.next_event) {
             if ev.at_s > t_s + 1e-12 {
@@ -475,11 +465,6 @@ impl Runner {
             }
             self.next_event += 1;
         }
-        let bus_v = if self.timing.sample_offset_s() > 0.0 {
-            bus_since_period_start_v
-        } else {
-            self.bus_mean_v
-        };
         let full_scale = ((1u32 << self.chain.sense.params().adc_bits) - 1) as u16;
         let raw = self.chain.sense.convert();
         let counts = self.chain.injectors.reading(t_s, raw, full_scale);

@@ -17,8 +17,8 @@ use std::path::Path;
 
 use pi_core::{
     AntiWindup, BusWindow, Command, ConfigError, CurrentLoop, DutyMapping, Feedforward, IntegratorRule,
-    LoopConfig, OutputLimits, OvercurrentLimit, PiConfig, PiGains, SetpointLimits, StuckDetection,
-    SupervisorConfig, ThermalConfig, TripClass,
+    LoopConfig, OutputLimits, OvercurrentLimit, PiConfig, PiGains, Requirement, SetpointLimits,
+    StuckDetection, SupervisorConfig, ThermalConfig, TripClass,
 };
 use serde::Deserialize;
 
@@ -82,20 +82,49 @@ impl From<ModelError> for ScenarioError {
     }
 }
 
-/// A pi-core configuration error, placed in the scenario section it came from.
+/// A pi-core configuration error, placed in the scenario section it came from
+/// and named as the scenario names it.
 fn core(section: &str, e: ConfigError) -> ScenarioError {
+    let field = match (section, e.field) {
+        (_, "setpoint_max_a") => "controller.setpoint.max_a".to_string(),
+        (_, "threshold_a") => "controller.protection.overcurrent_a".to_string(),
+        ("controller.protection", "samples") => "controller.protection.overcurrent_samples".to_string(),
+        ("controller.protection", "tau_s") => "controller.protection.thermal_time_constant_s".to_string(),
+        ("controller.protection", "min_drive") => "controller.protection.stuck_min_duty".to_string(),
+        ("controller.protection", "window_counts") => "controller.protection.stuck_band_counts".to_string(),
+        ("controller", "v_max") => "controller.output_limit_v".to_string(),
+        ("controller", "period_s") => "timing.control_period_s".to_string(),
+        ("sense", f) => format!(
+            "sense.{}",
+            match f {
+                "vref_v" => "adc_reference_v",
+                "offset_counts" => "amplifier_offset_v",
+                other => other,
+            }
+        ),
+        (s, f) => format!("{s}.{f}"),
+    };
+    let scenario_name = |other: &str| match other {
+        "the overcurrent threshold_a" => "controller.protection.overcurrent_a".to_string(),
+        o => o.to_string(),
+    };
+    let needs = match e.needs {
+        Requirement::Finite => "a finite number".to_string(),
+        Requirement::Positive => "a finite number greater than zero".to_string(),
+        Requirement::NonNegative => "a finite number, zero or more".to_string(),
+        Requirement::Within { min, max } if min == f32::MIN_POSITIVE => {
+            format!("greater than 0 and at most {max}")
+        }
+        Requirement::Within { min, max } => format!("between {min} and {max}"),
+        Requirement::Above(other) => format!("greater than {}", scenario_name(other)),
+        Requirement::Below(other) => format!("less than {}", scenario_name(other)),
+        Requirement::DifferentFrom(other) => format!("different from {other}"),
+        Requirement::AtLeastOne => "a whole number of at least 1".to_string(),
+    };
     ScenarioError::Invalid(ModelError {
-        field: format!("{section}.{}", e.field),
+        field,
         value: format!("{}", e.value),
-        needs: {
-            // pi-core's message is "<field> = <value> <requirement>; <advice>": keep
-            // the requirement and let ModelError add the advice.
-            let text = e.to_string();
-            let prefix = format!("{} = {} ", e.field, e.value);
-            let rest = text.strip_prefix(&prefix).unwrap_or(&text);
-            let rest = rest.split(';').next().unwrap_or(rest);
-            rest.strip_prefix("must be ").unwrap_or(rest).to_string()
-        },
+        needs,
     })
 }
 
@@ -770,8 +799,8 @@ fn controller(
         )
         .map_err(perr)?,
         BusWindow::new(
-            f32_of("bus_min_v", p.bus_min_v)?,
-            f32_of("bus_max_v", p.bus_max_v)?,
+            f32_of("controller.protection.bus_min_v", p.bus_min_v)?,
+            f32_of("controller.protection.bus_max_v", p.bus_max_v)?,
         )
         .map_err(perr)?,
     );
@@ -785,14 +814,15 @@ fn controller(
                 TripClassName::Class30 => TripClass::Class30,
             };
             supervisor = supervisor.with_thermal(
-                ThermalConfig::from_trip_class(f32_of("rated_a", rated)?, class).map_err(perr)?,
+                ThermalConfig::from_trip_class(f32_of("controller.protection.rated_a", rated)?, class)
+                    .map_err(perr)?,
             );
         }
         (Some(rated), None, Some(tau)) => {
             supervisor = supervisor.with_thermal(
                 ThermalConfig::from_time_constant(
-                    f32_of("rated_a", rated)?,
-                    f32_of("thermal_time_constant_s", tau)?,
+                    f32_of("controller.protection.rated_a", rated)?,
+                    f32_of("controller.protection.thermal_time_constant_s", tau)?,
                 )
                 .map_err(perr)?,
             );
@@ -818,7 +848,8 @@ fn controller(
         (None, None, None) => {}
         (Some(band), Some(ticks), Some(duty)) => {
             supervisor = supervisor.with_stuck_detection(
-                StuckDetection::new(band, ticks, f32_of("stuck_min_duty", duty)?).map_err(perr)?,
+                StuckDetection::new(band, ticks, f32_of("controller.protection.stuck_min_duty", duty)?)
+                    .map_err(perr)?,
             );
         }
         _ => {
@@ -832,19 +863,25 @@ fn controller(
     }
     let sp = &c.setpoint;
     let setpoint = SetpointLimits::new(
-        f32_of("min_a", sp.min_a)?,
-        f32_of("max_a", sp.max_a)?,
-        f32_of("slew_a_per_s", sp.slew_a_per_s)?,
+        f32_of("controller.setpoint.min_a", sp.min_a)?,
+        f32_of("controller.setpoint.max_a", sp.max_a)?,
+        f32_of("controller.setpoint.slew_a_per_s", sp.slew_a_per_s)?,
     )
     .map_err(|e| core("controller.setpoint", e))?;
-    let duty =
-        DutyMapping::new(f32_of("max_duty", c.max_duty)?, f32_of("min_bus_v", c.min_bus_v)?).map_err(err)?;
+    let duty = DutyMapping::new(
+        f32_of("controller.max_duty", c.max_duty)?,
+        f32_of("controller.min_bus_v", c.min_bus_v)?,
+    )
+    .map_err(err)?;
     let calibration = sense.nominal_calibration().map_err(|e| core("sense", e))?;
     let mut cfg = LoopConfig::new(calibration, setpoint, supervisor, pi, duty).map_err(|e| core(psec, e))?;
     if c.feedforward_resistance_ohm != 0.0 || c.feedforward_back_emf_v_s_per_rad != 0.0 {
         cfg = cfg.with_feedforward(
             Feedforward::new(
-                f32_of("feedforward_resistance_ohm", c.feedforward_resistance_ohm)?,
+                f32_of(
+                    "controller.feedforward_resistance_ohm",
+                    c.feedforward_resistance_ohm,
+                )?,
                 f32_of(
                     "feedforward_back_emf_v_s_per_rad",
                     c.feedforward_back_emf_v_s_per_rad,

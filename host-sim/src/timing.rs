@@ -13,6 +13,9 @@
 use crate::model_error::ModelError;
 use crate::noise::Gaussian;
 
+/// The longest computation delay accepted, in control periods.
+pub const MAX_DELAY_PERIODS: f64 = 16.0;
+
 /// Timing parameters, seconds.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct TimingParams {
@@ -73,6 +76,21 @@ impl Timing {
         }
         ModelError::non_negative("timing.computation_delay_s", params.computation_delay_s)?;
         ModelError::non_negative("timing.jitter_rms_s", params.jitter_rms_s)?;
+        // A loop whose update lands many periods late is not a current loop any more.
+        if params.computation_delay_s >= MAX_DELAY_PERIODS * tc {
+            return Err(ModelError::new(
+                "timing.computation_delay_s",
+                params.computation_delay_s,
+                format!("shorter than {MAX_DELAY_PERIODS} control periods"),
+            ));
+        }
+        if params.jitter_rms_s >= tc {
+            return Err(ModelError::new(
+                "timing.jitter_rms_s",
+                params.jitter_rms_s,
+                "shorter than one control period",
+            ));
+        }
         Ok(Self {
             params,
             pwm_period_s,
@@ -103,11 +121,13 @@ impl Timing {
         if self.params.jitter_rms_s > 0.0 {
             delay += self.params.jitter_rms_s * self.jitter.sample();
         }
-        let ready = self.sample_offset_s() + delay.max(0.0);
+        // Jitter draws beyond the accepted delay are cut there.
+        let limit = MAX_DELAY_PERIODS * self.control_period_s();
+        let ready = self.sample_offset_s() + delay.clamp(0.0, limit);
         // The first period start strictly after `ready` (measured from the sample
         // period's start), with a guard of a part per billion against rounding.
         let after = (ready / self.pwm_period_s * (1.0 + 1e-9)).floor() as u64 + 1;
-        sample_period + after
+        sample_period.saturating_add(after)
     }
 
     /// The parameters.

@@ -1,0 +1,201 @@
+//! The scenario file and the `ampwright simulate` command: the demo runs and
+//! writes its files, a malformed scenario is one clear error and exit code 2,
+//! and no value put into the demo scenario makes the parser or the run panic.
+
+use std::path::PathBuf;
+
+use host_sim::{Scenario, ScenarioError, demo};
+use proptest::prelude::*;
+
+fn demo_with(from: &str, to: &str) -> String {
+    assert!(
+        demo::SCENARIO_TOML.contains(from),
+        "the demo scenario has `{from}`"
+    );
+    demo::SCENARIO_TOML.replacen(from, to, 1)
+}
+
+fn error_of(text: &str) -> String {
+    match Scenario::parse(text, "t") {
+        Ok(_) => panic!("accepted: {text}"),
+        Err(e) => e.to_string(),
+    }
+}
+
+#[test]
+fn demo_scenario_parses_and_meets_its_spec() {
+    let s = demo::scenario().unwrap();
+    let (_, report) = host_sim::report::run(&s, &mut |_| {}).unwrap();
+    assert_eq!(report.steps.len(), 2);
+    assert_eq!(report.pass, Some(true), "{}", report.table());
+    assert!(report.first_fault.is_none());
+}
+
+#[test]
+fn malformed_scenarios_name_the_field_in_one_sentence() {
+    let cases = [
+        (
+            demo_with("resistance_ohm = 1.9 ", "resistence_ohm = 1.9 "),
+            "unknown field `resistence_ohm`",
+        ),
+        (
+            demo_with("inductance_h = 2.4e-3", "inductance_h = -2.4e-3"),
+            "motor.inductance_h = -0.0024",
+        ),
+        (
+            demo_with("mode = \"switching\"", "mode = \"switched\""),
+            "unknown variant `switched`",
+        ),
+        (
+            demo_with("overcurrent_a = 6.0", "overcurrent_a = 3.0"),
+            "controller.setpoint.max_a = 4 must be less than controller.protection.overcurrent_a",
+        ),
+        (
+            demo_with("control_period_s = 50e-6 ", "control_period_s = 70e-6 "),
+            "timing.control_period_s",
+        ),
+        (
+            demo_with("max_duty = 0.95", "max_duty = 1.5"),
+            "controller.max_duty = 1.5",
+        ),
+        (
+            demo_with("adc_bits = 12 ", "adc_bits = 20 "),
+            "sense.adc_bits = 20",
+        ),
+        (
+            demo_with("dead_time_s = 300e-9", "dead_time_s = 30e-6"),
+            "bridge.dead_time_s",
+        ),
+        (
+            demo_with("duration_s = 0.02", "duration_s = nan"),
+            "duration_s = NaN",
+        ),
+        (
+            demo_with("current_a = 1.5", "currant_a = 1.5"),
+            "unknown field `currant_a`",
+        ),
+        ("duration_s = 1\n".to_string(), "missing field `motor`"),
+        ("this is not toml".to_string(), "scenario line 1"),
+    ];
+    for (text, expected) in cases {
+        let msg = error_of(&text);
+        assert!(msg.contains(expected), "expected `{expected}` in: {msg}");
+        assert!(!msg.contains('\n'), "one line: {msg}");
+        // One sentence: a single clause separator before the advice, no trailing stop.
+        assert_eq!(msg.matches("; ").count(), 1, "one piece of advice: {msg}");
+    }
+}
+
+#[test]
+fn syntax_errors_point_at_the_line() {
+    let text = demo_with("pwm_frequency_hz = 20000.0", "pwm_frequency_hz = \"fast\"");
+    match Scenario::parse(&text, "t") {
+        Err(ScenarioError::Syntax { line, .. }) => {
+            let expected = text.lines().position(|l| l.contains("\"fast\"")).unwrap() + 1;
+            assert_eq!(line, expected);
+        }
+        other => panic!("{other:?}"),
+    }
+}
+
+fn temp_dir(name: &str) -> PathBuf {
+    let d = std::env::temp_dir().join(format!("ampwright-test-{name}-{}", std::process::id()));
+    let _ = std::fs::remove_dir_all(&d);
+    std::fs::create_dir_all(&d).unwrap();
+    d
+}
+
+#[test]
+fn simulate_command_writes_csv_and_svg_and_exits_0() {
+    let dir = temp_dir("ok");
+    let scenario = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("../host-sim/scenarios/carousel_step.toml");
+    let out = dir.join("out");
+    let args = [
+        "ampwright",
+        "simulate",
+        scenario.to_str().unwrap(),
+        "--out",
+        out.to_str().unwrap(),
+        "--quiet",
+    ];
+    assert_eq!(host_sim::cli::main(args.map(Into::into)), 0);
+    let csv = std::fs::read_to_string(out.join("carousel-step.csv")).unwrap();
+    assert!(csv.starts_with(host_sim::trace::CSV_HEADER));
+    assert_eq!(csv.lines().count(), 1 + 400, "a header and one row per tick");
+    let svg = std::fs::read_to_string(out.join("carousel-step.svg")).unwrap();
+    assert!(svg.starts_with("<svg") && svg.trim_end().ends_with("</svg>"));
+    assert!(svg.contains("2 % band") && svg.contains("polyline"));
+}
+
+#[test]
+fn simulate_command_exits_2_on_a_malformed_scenario() {
+    let dir = temp_dir("bad");
+    let bad = dir.join("bad.toml");
+    std::fs::write(&bad, demo_with("shunt_ohm = 0.010", "shunt_ohm = 0.0")).unwrap();
+    let args = [
+        "ampwright",
+        "simulate",
+        bad.to_str().unwrap(),
+        "--out",
+        dir.to_str().unwrap(),
+    ];
+    assert_eq!(host_sim::cli::main(args.map(Into::into)), 2);
+    assert!(!dir.join("carousel-step.csv").exists(), "nothing written");
+    let missing = ["ampwright", "simulate", "/no/such/scenario.toml"];
+    assert_eq!(host_sim::cli::main(missing.map(Into::into)), 2);
+    assert_eq!(host_sim::cli::main(["ampwright", "simulate"].map(Into::into)), 2);
+}
+
+/// Numeric fields of the demo scenario, as `name = value` prefixes.
+const NUMERIC_FIELDS: [&str; 16] = [
+    "resistance_ohm = ",
+    "inductance_h = ",
+    "inertia_kg_m2 = ",
+    "coulomb_n_m = ",
+    "supply_v = ",
+    "pwm_frequency_hz = ",
+    "dead_time_s = ",
+    "shunt_ohm = ",
+    "noise_rms_v = ",
+    "cutoff_hz = ",
+    "sample_phase = ",
+    "computation_delay_s = ",
+    "kp_v_per_a = ",
+    "ti_s = ",
+    "slew_a_per_s = ",
+    "current_a = ",
+];
+
+fn any_value() -> impl Strategy<Value = String> {
+    prop_oneof![
+        Just("nan".to_string()),
+        Just("inf".to_string()),
+        Just("-inf".to_string()),
+        Just("0".to_string()),
+        Just("-1".to_string()),
+        Just("1e300".to_string()),
+        (-1.0e6f64..1.0e6).prop_map(|v| format!("{v:e}")),
+        (0.0f64..1.0).prop_map(|v| format!("{v}")),
+    ]
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig { cases: ampwright_tests::cases(48), ..ProptestConfig::default() })]
+
+    /// Whatever number goes into a field, parsing gives a scenario or an error,
+    /// and a scenario that parses runs without panicking or producing NaN.
+    #[test]
+    fn no_value_makes_the_parser_or_the_run_panic(field in 0..NUMERIC_FIELDS.len(), value in any_value()) {
+        let key = NUMERIC_FIELDS[field];
+        let start = demo::SCENARIO_TOML.find(key).unwrap() + key.len();
+        let end = start + demo::SCENARIO_TOML[start..].find(|c: char| c.is_whitespace()).unwrap();
+        let text = format!("{}{}{}", &demo::SCENARIO_TOML[..start], value, &demo::SCENARIO_TOML[end..]);
+        if let Ok(mut s) = Scenario::parse(&text, "t") {
+            s.duration_s = s.duration_s.min(2e-3);
+            let (trace, _) = host_sim::report::run(&s, &mut |_| {}).unwrap();
+            for p in &trace.points {
+                prop_assert!(p.current_a.is_finite() && p.duty.is_finite(), "{key}{value}: {p:?}");
+            }
+        }
+    }
+}
