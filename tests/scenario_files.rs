@@ -32,6 +32,29 @@ fn demo_scenario_parses_and_meets_its_spec() {
 }
 
 #[test]
+fn readme_shows_the_demo_table_as_it_is() {
+    let readme = include_str!("../README.md");
+    let s = demo::scenario().unwrap();
+    let (_, report) = host_sim::report::run(&s, &mut |_| {}).unwrap();
+    let table = report.table();
+    let rows: Vec<&str> = table
+        .lines()
+        .filter(|l| l.trim_start().starts_with(['0', '1']))
+        .collect();
+    assert_eq!(rows.len(), 2);
+    for row in rows {
+        assert!(
+            readme.contains(row),
+            "README's demo table is out of date; put in:\n{row}"
+        );
+    }
+    assert!(
+        readme.contains(demo::SCENARIO_PATH),
+        "README names the demo scenario"
+    );
+}
+
+#[test]
 fn malformed_scenarios_name_the_field_in_one_sentence() {
     let cases = [
         (

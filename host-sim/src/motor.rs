@@ -197,7 +197,7 @@ impl Motor {
                 [[1.0 / l, 0.0], [0.0, 1.0 / j]],
             )
         };
-        let disc = Discrete::first_order_hold(a, b, dt_s);
+        let disc = Discrete::zero_order_hold(a, b, dt_s);
         self.cache = Some((key.0, key.1, key.2, disc));
         disc
     }
