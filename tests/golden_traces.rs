@@ -68,10 +68,12 @@ fn traces_match_the_golden_files() {
 fn golden_runs_show_what_they_are_for() {
     // The sensor short trips on the first shorted reading, with the bridge off.
     let csv = run("sensor-short");
+    let header: Vec<&str> = host_sim::trace::CSV_HEADER.split(',').collect();
+    let col = |name: &str| header.iter().position(|h| *h == name).unwrap();
     let rows: Vec<Vec<&str>> = csv.lines().skip(1).map(|l| l.split(',').collect()).collect();
-    let first_faulted = rows.iter().position(|r| r[13] == "2").unwrap();
-    let t: f64 = rows[first_faulted][0].parse().unwrap();
+    let first_faulted = rows.iter().position(|r| r[col("state")] == "2").unwrap();
+    let t: f64 = rows[first_faulted][col("t_s")].parse().unwrap();
     assert!((t - 2.025e-3).abs() < 1e-9, "first sample after 2 ms: {t}");
-    assert_eq!(rows[first_faulted][5], "0", "the shorted reading");
-    assert_eq!(rows[first_faulted][8], "0", "bridge off");
+    assert_eq!(rows[first_faulted][col("counts")], "0", "the shorted reading");
+    assert_eq!(rows[first_faulted][col("enabled")], "0", "bridge off");
 }

@@ -32,6 +32,20 @@ fn demo_scenario_parses_and_meets_its_spec() {
 }
 
 #[test]
+fn every_shipped_scenario_is_valid() {
+    let dir = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("../host-sim/scenarios");
+    let mut n = 0;
+    for entry in std::fs::read_dir(dir).unwrap() {
+        let path = entry.unwrap().path();
+        if path.extension().is_some_and(|e| e == "toml") {
+            Scenario::load(&path).unwrap_or_else(|e| panic!("{}: {e}", path.display()));
+            n += 1;
+        }
+    }
+    assert!(n >= 2);
+}
+
+#[test]
 fn readme_shows_the_demo_table_as_it_is() {
     let readme = include_str!("../README.md");
     let s = demo::scenario().unwrap();

@@ -229,6 +229,7 @@ mod tests {
             enabled: true,
             speed_rad_s: 0.0,
             bus_v: 24.0,
+            supply_a: 0.0,
             winding_c: 20.0,
             fault_bits: 0,
             state: 1,

@@ -30,7 +30,7 @@ pub struct Report {
     pub control_rate_hz: f64,
     /// Simulated time, seconds.
     pub duration_s: f64,
-    /// Control ticks run.
+    /// Control ticks run (the trace may keep fewer; see `record_every_ticks`).
     pub ticks: usize,
     /// Each setpoint step, measured.
     pub steps: Vec<StepMetrics>,
@@ -63,7 +63,13 @@ pub fn run(scenario: &Scenario, progress: &mut dyn FnMut(f64)) -> Result<(Trace,
 
 /// The report of a finished run.
 pub fn summarise(scenario: &Scenario, trace: &Trace) -> Report {
-    let steps = metrics::steps(&trace.points, MIN_STEP_A);
+    // A thinned trace cannot time a step; measure only full-rate traces.
+    let thinned = scenario.record_every_ticks > 1;
+    let steps = if thinned {
+        Vec::new()
+    } else {
+        metrics::steps(&trace.points, MIN_STEP_A)
+    };
     let checks = metrics::verdict(&steps, &scenario.spec);
     let pass = (!checks.is_empty()).then(|| checks.iter().all(|c| c.pass));
     let all_bits = trace.points.iter().fold(0u16, |acc, p| acc | p.fault_bits);
@@ -89,13 +95,26 @@ pub fn summarise(scenario: &Scenario, trace: &Trace) -> Report {
         pwm_frequency_hz: bridge.pwm_frequency_hz,
         control_rate_hz: 1.0 / scenario.timing.control_period_s(),
         duration_s: scenario.duration_s,
-        ticks: trace.points.len(),
+        ticks: (scenario.duration_s / scenario.timing.control_period_s()).round() as usize,
         steps,
         checks,
         pass,
         faults_latched,
         first_fault,
-        log: trace.log.iter().map(|e| (e.t_s, e.text.clone())).collect(),
+        log: trace
+            .log
+            .iter()
+            .map(|e| (e.t_s, e.text.clone()))
+            .chain(thinned.then(|| {
+                (
+                    0.0,
+                    format!(
+                        "the trace keeps one tick in {}, so steps are not measured",
+                        scenario.record_every_ticks
+                    ),
+                )
+            }))
+            .collect(),
         peak_current_a: trace.points.iter().map(|p| p.current_a.abs()).fold(0.0, f64::max),
         peak_duty: trace.points.iter().map(|p| p.duty.abs()).fold(0.0, f64::max),
         max_winding_c: trace

@@ -196,6 +196,10 @@ pub struct Runner {
     period: u64,
     request_a: f64,
     record_edges: bool,
+    record_every: u64,
+    ticks: u64,
+    charge_a_s: f64,
+    charge_time_s: f64,
     trace: Trace,
 }
 
@@ -213,6 +217,10 @@ impl Runner {
             period: 0,
             request_a: 0.0,
             record_edges: false,
+            record_every: 1,
+            ticks: 0,
+            charge_a_s: 0.0,
+            charge_time_s: 0.0,
             trace: Trace::default(),
         }
     }
@@ -220,6 +228,13 @@ impl Runner {
     /// Records the current at every PWM edge as well (switching mode).
     pub fn record_edges(mut self, on: bool) -> Self {
         self.record_edges = on;
+        self
+    }
+
+    /// Keeps one trace point in `every` ticks (1: all of them), for long runs.
+    /// The controller still runs every tick; only the record is thinned.
+    pub fn record_every(mut self, every: u64) -> Self {
+        self.record_every = every.max(1);
         self
     }
 
@@ -374,6 +389,8 @@ impl Runner {
         }
         let i1 = self.chain.motor.current_a();
         self.chain.sense.advance(i1, dt_s);
+        self.charge_a_s += out.supply_a * dt_s;
+        self.charge_time_s += dt_s;
         if self.record_edges {
             self.trace.edges.push(EdgePoint {
                 t_s: t_s + dt_s,
@@ -425,14 +442,17 @@ impl Runner {
         }
         let i0 = self.chain.motor.current_a();
         let t_pwm = self.chain.bridge.pwm_period_s();
-        let mut v = 0.0;
+        let (mut v, mut supply) = (0.0, 0.0);
         let mut all_clamped = true;
         for iv in pattern.intervals() {
             let out = self.chain.bridge.output(iv.state, pattern.sign, i0);
             let w = (iv.end_s - iv.start_s) / t_pwm;
             v += out.terminal_v * w;
+            supply += out.supply_a * w;
             all_clamped &= iv.state.diode_clamped();
         }
+        self.charge_a_s += supply * dt_s;
+        self.charge_time_s += dt_s;
         if all_clamped {
             self.clamped_step(v, drive, dt_s);
         } else {
@@ -479,6 +499,18 @@ impl Runner {
         let load_at = self.timing.load_period(period);
         self.pending.push_back((load_at, command));
         let view = controller.view();
+        let supply_a = if self.charge_time_s > 0.0 {
+            self.charge_a_s / self.charge_time_s
+        } else {
+            0.0
+        };
+        self.charge_a_s = 0.0;
+        self.charge_time_s = 0.0;
+        let keep = self.ticks.is_multiple_of(self.record_every);
+        self.ticks += 1;
+        if !keep {
+            return;
+        }
         self.trace.points.push(TracePoint {
             t_s,
             request_a: self.request_a,
@@ -491,6 +523,7 @@ impl Runner {
             enabled: command.enabled,
             speed_rad_s: speed,
             bus_v,
+            supply_a,
             winding_c: self.chain.motor.temperature_c(),
             fault_bits: view.fault_bits,
             state: view.state,

@@ -141,6 +141,9 @@ struct File {
     description: String,
     /// Length of the run, seconds.
     duration_s: f64,
+    /// Keep one trace point in this many ticks (default 1: every tick).
+    #[serde(default = "one")]
+    record_every_ticks: u64,
     motor: MotorSection,
     bridge: BridgeSection,
     sense: SenseSection,
@@ -436,6 +439,8 @@ pub struct Scenario {
     pub description: String,
     /// Length of the run, seconds.
     pub duration_s: f64,
+    /// One trace point in this many ticks.
+    pub record_every_ticks: u64,
     /// The plant.
     pub chain: DriveChain,
     /// The firmware's timing.
@@ -506,7 +511,10 @@ fn f32_of(field: &str, v: f64) -> Result<f32, ScenarioError> {
 }
 
 fn build(f: File, fallback_name: &str) -> Result<Scenario, ScenarioError> {
-    let duration_s = ModelError::positive("duration_s", f.duration_s)?;
+    let duration_s = ModelError::within("duration_s", f.duration_s, 1e-9, 1e6)?;
+    if f.record_every_ticks == 0 {
+        return Err(ModelError::new("record_every_ticks", 0, "a whole number of at least 1").into());
+    }
 
     // Motor.
     let m = &f.motor;
@@ -727,6 +735,7 @@ fn build(f: File, fallback_name: &str) -> Result<Scenario, ScenarioError> {
         name: f.name.clone().unwrap_or_else(|| fallback_name.to_string()),
         description: f.description.clone(),
         duration_s,
+        record_every_ticks: f.record_every_ticks,
         chain: DriveChain {
             motor,
             bridge,

@@ -28,6 +28,9 @@ pub struct TracePoint {
     pub speed_rad_s: f64,
     /// Bus voltage the controller was given, volts.
     pub bus_v: f64,
+    /// Mean current drawn from the supply since the previous tick, amperes
+    /// (negative: returned to it).
+    pub supply_a: f64,
     /// Winding temperature, C.
     pub winding_c: f64,
     /// Latched faults (the bits of [`pi_core::FaultSet`]).
@@ -68,7 +71,7 @@ pub struct Trace {
 }
 
 /// The CSV header of [`Trace::write_csv`].
-pub const CSV_HEADER: &str = "t_s,request_a,setpoint_a,current_a,measured_a,counts,commanded_v,duty,enabled,speed_rad_s,bus_v,winding_c,fault_bits,state";
+pub const CSV_HEADER: &str = "t_s,request_a,setpoint_a,current_a,measured_a,counts,commanded_v,duty,enabled,speed_rad_s,bus_v,supply_a,winding_c,fault_bits,state";
 
 impl Trace {
     /// Writes the per-tick points as CSV (header [`CSV_HEADER`], SI units,
@@ -78,7 +81,7 @@ impl Trace {
         for p in &self.points {
             writeln!(
                 out,
-                "{:.9e},{},{},{},{},{},{},{},{},{},{},{},{},{}",
+                "{:.9e},{},{},{},{},{},{},{},{},{},{},{},{},{},{}",
                 p.t_s,
                 p.request_a,
                 p.setpoint_a,
@@ -90,6 +93,7 @@ impl Trace {
                 u8::from(p.enabled),
                 p.speed_rad_s,
                 p.bus_v,
+                p.supply_a,
                 p.winding_c,
                 p.fault_bits,
                 p.state

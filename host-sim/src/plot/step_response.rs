@@ -66,8 +66,14 @@ pub fn step_response_svg(trace: &Trace, plot: &StepPlot) -> String {
         px_lo: bottom,
         px_hi: top,
     };
-    let ms = |t: f64| crate::plot::svg::format_tick(t * 1e3);
-    c.frame(&x, &y, "time (ms)", "current (A)", &ms);
+    // Milliseconds for short runs, seconds for long ones.
+    let (scale, unit) = if t_end > 2.0 {
+        (1.0, "time (s)")
+    } else {
+        (1e3, "time (ms)")
+    };
+    let fmt = |t: f64| crate::plot::svg::format_tick(t * scale);
+    c.frame(&x, &y, unit, "current (A)", &fmt);
     c.right_axis(right, &duty, "duty (signed)", DUTY);
     c.text(left, 28.0, &plot.title, 15.0, "start", "#111");
 
