@@ -149,40 +149,12 @@ impl<const N: usize, const M: usize> Discrete<N, M> {
     /// hold. `N + 2 M` must not exceed [`MAX_DIM`] (checked at compile time).
     pub fn first_order_hold(a: [[f64; N]; N], b: [[f64; M]; N], dt_s: f64) -> Self {
         const { assert!(N + 2 * M <= MAX_DIM) };
-        let dim = N + 2 * M;
-        let mut big = Matrix::zeros(dim);
-        for i in 0..N {
-            for j in 0..N {
-                big.set(i, j, a[i][j] * dt_s);
-            }
-            for j in 0..M {
-                big.set(i, N + j, b[i][j] * dt_s);
-            }
-        }
-        // The input ramps: u' = (u(dt) - u(0)) / dt, carried as a state with slope 1 in
-        // the scaled time; its block is the identity times dt / dt = 1.
-        for j in 0..M {
-            big.set(N + j, N + M + j, 1.0);
-        }
-        let e = big.exp();
-        let mut out = Self {
-            phi: [[0.0; N]; N],
-            gamma_start: [[0.0; M]; N],
-            gamma_end: [[0.0; M]; N],
-        };
-        for i in 0..N {
-            for j in 0..N {
-                out.phi[i][j] = e.get(i, j);
-            }
-            for j in 0..M {
-                let hold = e.get(i, N + j);
-                let ramp = e.get(i, N + M + j);
-                // x = phi x0 + hold u0 + ramp (u1 - u0)
-                out.gamma_start[i][j] = hold - ramp;
-                out.gamma_end[i][j] = ramp;
-            }
-        }
-        out
+        let e = Self::augmented_exp(a, b, dt_s, true);
+        Self::from_exp(&e, |i, j| {
+            // x = phi x0 + hold u0 + ramp (u1 - u0)
+            let (hold, ramp) = (e.get(i, N + j), e.get(i, N + M + j));
+            (hold - ramp, ramp)
+        })
     }
 
     /// Discretises `x' = a x + b u` over `dt_s` seconds with the input held (zero-
@@ -190,7 +162,14 @@ impl<const N: usize, const M: usize> Discrete<N, M> {
     /// input. `N + M` must not exceed [`MAX_DIM`].
     pub fn zero_order_hold(a: [[f64; N]; N], b: [[f64; M]; N], dt_s: f64) -> Self {
         const { assert!(N + M <= MAX_DIM) };
-        let mut big = Matrix::zeros(N + M);
+        let e = Self::augmented_exp(a, b, dt_s, false);
+        Self::from_exp(&e, |i, j| (e.get(i, N + j), 0.0))
+    }
+
+    /// `exp` of `[[A, B], [0, 0]] dt`, with the ramp block `[[.., 0], [0, I], [0, 0]]`
+    /// appended when `ramp`.
+    fn augmented_exp(a: [[f64; N]; N], b: [[f64; M]; N], dt_s: f64, ramp: bool) -> Matrix {
+        let mut big = Matrix::zeros(if ramp { N + 2 * M } else { N + M });
         for i in 0..N {
             for j in 0..N {
                 big.set(i, j, a[i][j] * dt_s);
@@ -199,7 +178,18 @@ impl<const N: usize, const M: usize> Discrete<N, M> {
                 big.set(i, N + j, b[i][j] * dt_s);
             }
         }
-        let e = big.exp();
+        if ramp {
+            // The input ramps: u' = (u(dt) - u(0)) / dt, carried as a state with
+            // slope 1 in the scaled time; its block is the identity times dt / dt = 1.
+            for j in 0..M {
+                big.set(N + j, N + M + j, 1.0);
+            }
+        }
+        big.exp()
+    }
+
+    /// Reads `phi` off the exponential and the two input weights from `gammas(i, j)`.
+    fn from_exp(e: &Matrix, gammas: impl Fn(usize, usize) -> (f64, f64)) -> Self {
         let mut out = Self {
             phi: [[0.0; N]; N],
             gamma_start: [[0.0; M]; N],
@@ -210,7 +200,7 @@ impl<const N: usize, const M: usize> Discrete<N, M> {
                 out.phi[i][j] = e.get(i, j);
             }
             for j in 0..M {
-                out.gamma_start[i][j] = e.get(i, N + j);
+                (out.gamma_start[i][j], out.gamma_end[i][j]) = gammas(i, j);
             }
         }
         out

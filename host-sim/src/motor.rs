@@ -335,15 +335,20 @@ impl Motor {
 mod tests {
     use super::*;
 
-    #[test]
-    fn free_running_speed_settles_at_the_no_load_value() {
-        // Steady state with B = 0, Tc = 0, no load: i -> 0, w -> V / Ke.
+    /// A free rotor: 2 ohm, 1 mH, Ke = Kt = 0.05, J = 1e-5, no friction.
+    fn free_rotor() -> MotorParams {
         let mut p = MotorParams::rl(2.0, 1e-3);
         p.locked_rotor = false;
         p.back_emf_v_s_per_rad = 0.05;
         p.torque_n_m_per_a = 0.05;
         p.inertia_kg_m2 = 1e-5;
-        let mut m = Motor::new(p).unwrap();
+        p
+    }
+
+    #[test]
+    fn free_running_speed_settles_at_the_no_load_value() {
+        // Steady state with B = 0, Tc = 0, no load: i -> 0, w -> V / Ke.
+        let mut m = Motor::new(free_rotor()).unwrap();
         let drive = MotorDrive {
             terminal_v: 10.0,
             load_torque_n_m: 0.0,
@@ -358,11 +363,7 @@ mod tests {
 
     #[test]
     fn coulomb_friction_holds_a_weak_drive() {
-        let mut p = MotorParams::rl(2.0, 1e-3);
-        p.locked_rotor = false;
-        p.back_emf_v_s_per_rad = 0.05;
-        p.torque_n_m_per_a = 0.05;
-        p.inertia_kg_m2 = 1e-5;
+        let mut p = free_rotor();
         p.coulomb_n_m = 0.02; // breakaway needs 0.4 A
         let mut m = Motor::new(p).unwrap();
         let weak = MotorDrive {
