@@ -60,6 +60,7 @@
 extern crate std;
 
 pub mod current_loop;
+pub mod design;
 pub mod error;
 pub mod hal;
 pub mod handoff;

@@ -1,0 +1,133 @@
+//! The number type of the design math: `f32` on the device, `f64` on the host,
+//! one implementation for both.
+//!
+//! Every function goes through `libm`, never through `std` or an approximation
+//! crate, so host tests exercise exactly the code the device runs (with `f32`).
+//! `libm`'s functions are within about one unit in the last place; quick
+//! approximations of sqrt, atan and ln were measured to be off by percent and
+//! more, which is too coarse for gains.
+
+use core::ops::{Add, Div, Mul, Neg, Sub};
+
+/// A floating-point type the design math runs in.
+pub trait Real:
+    Copy
+    + PartialOrd
+    + Add<Output = Self>
+    + Sub<Output = Self>
+    + Mul<Output = Self>
+    + Div<Output = Self>
+    + Neg<Output = Self>
+    + core::fmt::Debug
+{
+    /// 0.
+    const ZERO: Self;
+    /// 1.
+    const ONE: Self;
+    /// pi.
+    const PI: Self;
+    /// The nearest value to an `f64` constant.
+    fn of(x: f64) -> Self;
+    /// As `f64` (exact for both types).
+    fn to_f64(self) -> f64;
+    /// Square root.
+    fn sqrt(self) -> Self;
+    /// `e^x`.
+    fn exp(self) -> Self;
+    /// `e^x - 1`, accurate for small `x`.
+    fn exp_m1(self) -> Self;
+    /// Natural logarithm.
+    fn ln(self) -> Self;
+    /// Four-quadrant arctangent of `self / x`.
+    fn atan2(self, x: Self) -> Self;
+    /// Cosine.
+    fn cos(self) -> Self;
+    /// Sine.
+    fn sin(self) -> Self;
+    /// Magnitude.
+    fn abs(self) -> Self {
+        if self < Self::ZERO { -self } else { self }
+    }
+    /// Finite (not NaN, not infinite).
+    fn is_finite(self) -> bool;
+    /// The larger of two (NaN-free inputs).
+    fn max(self, other: Self) -> Self {
+        if self > other { self } else { other }
+    }
+    /// The smaller of two (NaN-free inputs).
+    fn min(self, other: Self) -> Self {
+        if self < other { self } else { other }
+    }
+}
+
+impl Real for f32 {
+    const ZERO: Self = 0.0;
+    const ONE: Self = 1.0;
+    const PI: Self = core::f32::consts::PI;
+    fn of(x: f64) -> Self {
+        x as f32
+    }
+    fn to_f64(self) -> f64 {
+        self as f64
+    }
+    fn sqrt(self) -> Self {
+        libm::sqrtf(self)
+    }
+    fn exp(self) -> Self {
+        libm::expf(self)
+    }
+    fn exp_m1(self) -> Self {
+        libm::expm1f(self)
+    }
+    fn ln(self) -> Self {
+        libm::logf(self)
+    }
+    fn atan2(self, x: Self) -> Self {
+        libm::atan2f(self, x)
+    }
+    fn cos(self) -> Self {
+        libm::cosf(self)
+    }
+    fn sin(self) -> Self {
+        libm::sinf(self)
+    }
+    fn is_finite(self) -> bool {
+        f32::is_finite(self)
+    }
+}
+
+impl Real for f64 {
+    const ZERO: Self = 0.0;
+    const ONE: Self = 1.0;
+    const PI: Self = core::f64::consts::PI;
+    fn of(x: f64) -> Self {
+        x
+    }
+    fn to_f64(self) -> f64 {
+        self
+    }
+    fn sqrt(self) -> Self {
+        libm::sqrt(self)
+    }
+    fn exp(self) -> Self {
+        libm::exp(self)
+    }
+    fn exp_m1(self) -> Self {
+        libm::expm1(self)
+    }
+    fn ln(self) -> Self {
+        libm::log(self)
+    }
+    fn atan2(self, x: Self) -> Self {
+        libm::atan2(self, x)
+    }
+    fn cos(self) -> Self {
+        libm::cos(self)
+    }
+    fn sin(self) -> Self {
+        libm::sin(self)
+    }
+    fn is_finite(self) -> bool {
+        f64::is_finite(self)
+    }
+}
