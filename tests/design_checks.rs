@@ -330,3 +330,110 @@ proptest! {
         }
     }
 }
+
+fn temp_dir(name: &str) -> std::path::PathBuf {
+    let d = std::env::temp_dir().join(format!("ampwright-design-{name}-{}", std::process::id()));
+    let _ = std::fs::remove_dir_all(&d);
+    std::fs::create_dir_all(&d).unwrap();
+    d
+}
+
+#[test]
+fn design_command_on_the_demo_writes_gains_json_and_both_pictures() {
+    let dir = temp_dir("ok");
+    let scenario =
+        std::path::PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("../host-sim/scenarios/carousel_step.toml");
+    let args = [
+        "ampwright",
+        "design",
+        scenario.to_str().unwrap(),
+        "--out",
+        dir.to_str().unwrap(),
+    ];
+    assert_eq!(host_sim::cli::main(args.map(Into::into)), 0);
+    let snippet = std::fs::read_to_string(dir.join("carousel-step-gains.rs")).unwrap();
+    let value = |name: &str| -> f32 {
+        let line = snippet
+            .lines()
+            .find(|l| l.contains(&format!("const {name}")))
+            .unwrap();
+        line.split('=')
+            .nth(1)
+            .unwrap()
+            .trim()
+            .trim_end_matches(';')
+            .parse()
+            .unwrap()
+    };
+    // The constants are what pi-core accepts.
+    pi_core::PiGains::from_kp_ti(value("KP_V_PER_A"), value("TI_S"))
+        .unwrap()
+        .with_setpoint_weight(value("SETPOINT_WEIGHT"))
+        .unwrap();
+    let json: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.join("carousel-step-design.json")).unwrap())
+            .unwrap();
+    assert!(json["chosen"].is_u64());
+    for svg in [
+        "carousel-step-root-locus.svg",
+        "carousel-step-frequency-response.svg",
+    ] {
+        let text = std::fs::read_to_string(dir.join(svg)).unwrap();
+        assert!(text.starts_with("<svg") && text.contains("polyline"), "{svg}");
+    }
+}
+
+#[test]
+fn an_infeasible_spec_exits_2() {
+    let dir = temp_dir("bad");
+    let scenario =
+        std::path::PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("../host-sim/scenarios/carousel_step.toml");
+    let s = scenario.to_str().unwrap();
+    let out = dir.to_str().unwrap();
+    for extra in [["--settling-time-s", "0.2e-3"], ["--overshoot-pct", "150"]] {
+        let args = ["ampwright", "design", s, "--out", out, extra[0], extra[1]];
+        assert_eq!(host_sim::cli::main(args.map(Into::into)), 2, "{extra:?}");
+    }
+    // The reason names the nearest feasible spec.
+    let mut sc = host_sim::Scenario::load(&scenario).unwrap();
+    sc.spec.settling_time_s = Some(0.2e-3);
+    let why = host_sim::design_report::design(&sc).unwrap_err().to_string();
+    assert!(why.contains("nearest feasible spec is"), "{why}");
+}
+
+#[test]
+fn designed_gains_hold_up_in_the_full_nonlinear_simulation() {
+    // The demo scenario without its gains: simulate designs them from [spec]
+    // (2 ms, 5 %) and runs the real loop on the switching bridge, the moving
+    // rotor, the noisy sensor. The measured steps stay near the prediction.
+    let text: String = host_sim::demo::SCENARIO_TOML
+        .lines()
+        .filter(|l| {
+            !(l.starts_with("kp_v_per_a") || l.starts_with("ti_s") || l.starts_with("setpoint_weight"))
+        })
+        .collect::<Vec<_>>()
+        .join("\n");
+    let s = host_sim::Scenario::parse(&text, "designed").unwrap();
+    assert!(
+        s.design_note
+            .as_deref()
+            .is_some_and(|n| n.contains("designed from the spec"))
+    );
+    let predicted = host_sim::design_report::design(&s).unwrap();
+    let chosen = predicted.chosen().unwrap();
+    let (_, report) = host_sim::report::run(&s, &mut |_| {}).unwrap();
+    for step in &report.steps {
+        println!(
+            "measured {:.2} % {:?} s, predicted {:.2} % {:?} s",
+            step.overshoot_pct,
+            step.settling_time_s,
+            chosen.discrete_overshoot.unwrap() * 100.0,
+            chosen.discrete_settling_s
+        );
+        assert!(step.overshoot_pct <= 5.0 + 1.0);
+        let ts = step.settling_time_s.unwrap();
+        assert!(
+            (ts - chosen.discrete_settling_s.unwrap()).abs() <= 0.15 * chosen.discrete_settling_s.unwrap()
+        );
+    }
+}

@@ -32,8 +32,10 @@
 //! period and calls the controller at each sampling instant; [`trace`] is what a
 //! run leaves; [`metrics`] measures steps (rise, overshoot, settling, error, IAE)
 //! and checks a spec; [`report`] runs a [`scenario`] and makes the table and the
-//! JSON; [`plot`] draws SVG; [`cli`] is the `ampwright` command; [`demo`] is the
-//! built-in invented machine and board.
+//! JSON; [`design_report`] applies `pi_core::design` to a scenario; [`plot`]
+//! draws SVG (step response, root locus, frequency response); [`cli`] is the
+//! `ampwright` command (`simulate`, `design`); [`demo`] is the built-in invented
+//! machine and board.
 //!
 //! Model parameters that are out of range are refused with a [`ModelError`]
 //! naming the field.
@@ -41,6 +43,7 @@
 pub mod bridge;
 pub mod cli;
 pub mod demo;
+pub mod design_report;
 pub mod faults;
 pub mod linear;
 pub mod metrics;

@@ -105,6 +105,7 @@ pub fn summarise(scenario: &Scenario, trace: &Trace) -> Report {
             .log
             .iter()
             .map(|e| (e.t_s, e.text.clone()))
+            .chain(scenario.design_note.clone().map(|n| (0.0, n)))
             .chain(thinned.then(|| {
                 (
                     0.0,

@@ -52,6 +52,8 @@ pub enum ScenarioError {
     },
     /// A value out of range.
     Invalid(ModelError),
+    /// The gains were to be designed from the spec, and that failed.
+    Design(String),
 }
 
 impl std::fmt::Display for ScenarioError {
@@ -70,11 +72,23 @@ impl std::fmt::Display for ScenarioError {
                 message.trim_end_matches('\n').replace('\n', " ")
             ),
             ScenarioError::Invalid(e) => write!(f, "{e}"),
+            ScenarioError::Design(why) => {
+                write!(f, "the scenario gives no gains and designing them failed: {why}")
+            }
         }
     }
 }
 
 impl std::error::Error for ScenarioError {}
+
+impl From<crate::design_report::DesignFailure> for ScenarioError {
+    fn from(e: crate::design_report::DesignFailure) -> Self {
+        match e {
+            crate::design_report::DesignFailure::Scenario(s) => s,
+            crate::design_report::DesignFailure::Infeasible(why) => ScenarioError::Design(why),
+        }
+    }
+}
 
 impl From<ModelError> for ScenarioError {
     fn from(e: ModelError) -> Self {
@@ -272,9 +286,6 @@ fn twelve() -> u8 {
 fn one() -> u64 {
     1
 }
-fn unity() -> f64 {
-    1.0
-}
 
 #[derive(Debug, Deserialize)]
 #[serde(deny_unknown_fields)]
@@ -319,10 +330,11 @@ enum TripClassName {
 #[derive(Debug, Deserialize)]
 #[serde(deny_unknown_fields)]
 struct ControllerSection {
-    kp_v_per_a: f64,
-    ti_s: f64,
-    #[serde(default = "unity")]
-    setpoint_weight: f64,
+    /// With `ti_s`; leave both out to have them designed from `[spec]`.
+    kp_v_per_a: Option<f64>,
+    ti_s: Option<f64>,
+    /// Default 1, or the design's choice when the gains are designed.
+    setpoint_weight: Option<f64>,
     integrator: Option<RuleName>,
     anti_windup: Option<AntiWindupName>,
     tracking_time_s: Option<f64>,
@@ -435,6 +447,8 @@ struct FaultSection {
 pub struct Scenario {
     /// Its name.
     pub name: String,
+    /// How the gains were designed, when the scenario gave a spec instead.
+    pub design_note: Option<String>,
     /// Free text from the file.
     pub description: String,
     /// Length of the run, seconds.
@@ -455,6 +469,8 @@ pub struct Scenario {
     pub overcurrent_a: f64,
     /// The largest duty (for plots).
     pub max_duty: f64,
+    /// The largest setpoint magnitude, amperes (for the design's headroom check).
+    pub setpoint_max_a: f64,
 }
 
 impl Scenario {
@@ -621,8 +637,65 @@ fn build(f: File, fallback_name: &str) -> Result<Scenario, ScenarioError> {
         bridge.pwm_period_s(),
     )?;
 
-    // Controller.
-    let loop_config = controller(&f.controller, &sense, &timing, b.supply_v)?;
+    let sp = &f.spec;
+    let spec = Spec {
+        rise_time_s: sp
+            .rise_time_s
+            .map(|v| ModelError::positive("spec.rise_time_s", v))
+            .transpose()?,
+        overshoot_pct: sp
+            .overshoot_pct
+            .map(|v| ModelError::non_negative("spec.overshoot_pct", v))
+            .transpose()?,
+        settling_time_s: sp
+            .settling_time_s
+            .map(|v| ModelError::positive("spec.settling_time_s", v))
+            .transpose()?,
+        steady_state_error_a: sp
+            .steady_state_error_a
+            .map(|v| ModelError::non_negative("spec.steady_state_error_a", v))
+            .transpose()?,
+    };
+
+    // Controller: the gains given, or designed from the spec.
+    let name = f.name.clone().unwrap_or_else(|| fallback_name.to_string());
+    let c = &f.controller;
+    let (kp, ti, weight, design_note) = match (c.kp_v_per_a, c.ti_s) {
+        (Some(kp), Some(ti)) => (kp, ti, c.setpoint_weight.unwrap_or(1.0), None),
+        (None, None) => {
+            let basis = crate::design_report::basis_from(
+                motor.params(),
+                bridge.params(),
+                sense.params(),
+                &timing,
+                &spec,
+                c.max_duty,
+                c.setpoint.max_a.abs().max(c.setpoint.min_a.abs()),
+            )
+            .map_err(ScenarioError::from)?;
+            let report = crate::design_report::design_basis(&name, basis).map_err(ScenarioError::from)?;
+            let m = report
+                .chosen()
+                .ok_or_else(|| ScenarioError::Design("no design method meets the spec".into()))?;
+            let (kp, ti) = (m.kp_v_per_a.unwrap_or(f64::NAN), m.ti_s.unwrap_or(f64::NAN));
+            let weight = c.setpoint_weight.unwrap_or(m.setpoint_weight);
+            let note = format!(
+                "gains designed from the spec by the {} method: Kp = {kp:.4} V/A, Ti = {:.4} ms, b = {weight}",
+                m.method,
+                ti * 1e3
+            );
+            (kp, ti, weight, Some(note))
+        }
+        (Some(_), None) | (None, Some(_)) => {
+            return Err(ModelError::new(
+                "controller.kp_v_per_a",
+                "(only one of kp_v_per_a and ti_s)",
+                "given together with ti_s, or both left out to design them from [spec]",
+            )
+            .into());
+        }
+    };
+    let loop_config = controller(c, (kp, ti, weight), &sense, &timing, b.supply_v)?;
 
     // Events, load profile, faults.
     let mut events = Vec::new();
@@ -657,7 +730,7 @@ fn build(f: File, fallback_name: &str) -> Result<Scenario, ScenarioError> {
                 let gains =
                     PiGains::from_kp_ti(f32_of(&field("kp_v_per_a"), kp)?, f32_of(&field("ti_s"), ti)?)
                         .map_err(|err| core(&format!("events[{k}]"), err))?;
-                let weight = f.controller.setpoint_weight as f32;
+                let weight = weight as f32;
                 Command::Retune(
                     gains
                         .with_setpoint_weight(weight)
@@ -711,28 +784,9 @@ fn build(f: File, fallback_name: &str) -> Result<Scenario, ScenarioError> {
     }
     let injectors = Injectors::new(injections)?;
 
-    let sp = &f.spec;
-    let spec = Spec {
-        rise_time_s: sp
-            .rise_time_s
-            .map(|v| ModelError::positive("spec.rise_time_s", v))
-            .transpose()?,
-        overshoot_pct: sp
-            .overshoot_pct
-            .map(|v| ModelError::non_negative("spec.overshoot_pct", v))
-            .transpose()?,
-        settling_time_s: sp
-            .settling_time_s
-            .map(|v| ModelError::positive("spec.settling_time_s", v))
-            .transpose()?,
-        steady_state_error_a: sp
-            .steady_state_error_a
-            .map(|v| ModelError::non_negative("spec.steady_state_error_a", v))
-            .transpose()?,
-    };
-
     Ok(Scenario {
-        name: f.name.clone().unwrap_or_else(|| fallback_name.to_string()),
+        name,
+        design_note,
         description: f.description.clone(),
         duration_s,
         record_every_ticks: f.record_every_ticks,
@@ -750,11 +804,18 @@ fn build(f: File, fallback_name: &str) -> Result<Scenario, ScenarioError> {
         spec,
         overcurrent_a: f.controller.protection.overcurrent_a,
         max_duty: f.controller.max_duty,
+        setpoint_max_a: f
+            .controller
+            .setpoint
+            .max_a
+            .abs()
+            .max(f.controller.setpoint.min_a.abs()),
     })
 }
 
 fn controller(
     c: &ControllerSection,
+    (kp, ti, weight): (f64, f64, f64),
     sense: &SenseChain,
     timing: &Timing,
     supply_v: f64,
@@ -762,11 +823,11 @@ fn controller(
     let sec = "controller";
     let err = |e: ConfigError| core(sec, e);
     let gains = PiGains::from_kp_ti(
-        f32_of("controller.kp_v_per_a", c.kp_v_per_a)?,
-        f32_of("controller.ti_s", c.ti_s)?,
+        f32_of("controller.kp_v_per_a", kp)?,
+        f32_of("controller.ti_s", ti)?,
     )
     .map_err(err)?
-    .with_setpoint_weight(f32_of("controller.setpoint_weight", c.setpoint_weight)?)
+    .with_setpoint_weight(f32_of("controller.setpoint_weight", weight)?)
     .map_err(err)?;
     let limit = f32_of("controller.output_limit_v", c.output_limit_v.unwrap_or(supply_v))?;
     let period = f32_of("timing.control_period_s", timing.control_period_s())?;

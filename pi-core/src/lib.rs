@@ -37,6 +37,12 @@
 //!   queue, with a control-interrupt skeleton.
 //! * [`hal`]: embedded-hal 1.0 adapters for sign-magnitude and two-PWM bridges.
 //!
+//! Off the tick path, [`design`] turns a winding, a sampling description and a
+//! spec into gains (root locus, pole-zero cancellation, modulus optimum, direct
+//! discrete placement) and analyses any gains on the sampled loop; it is generic
+//! over `f32` (on the device, for a retune from a bench command) and `f64` (the
+//! host's `ampwright design`), and never runs inside the control interrupt.
+//!
 //! ## Conventions
 //!
 //! SI units everywhere, named in identifiers (`_a`, `_v`, `_ohm`, `_h`, `_s`,

@@ -2,9 +2,10 @@
 //! Commands only parse, call the library and print.
 //!
 //! Exit codes: 0 done (and the spec, if any, met); 1 the run finished but a spec
-//! criterion failed; 2 bad input (arguments, scenario) or an output that could
-//! not be written.
+//! criterion failed; 2 bad input (arguments, scenario), a spec no design can
+//! meet, or an output that could not be written.
 
+pub mod design;
 pub mod progress;
 pub mod simulate;
 
@@ -29,6 +30,29 @@ pub enum CommandArgs {
     /// Run a scenario file through the real pi-core loop: metrics table and
     /// verdict on stdout, trace CSV and step-response SVG in the output folder.
     Simulate(SimulateArgs),
+    /// Design PI gains for the scenario's winding, sampling and `[spec]` with
+    /// every method, analyse each on the sampled loop, and write the chosen
+    /// gains as Rust constants and JSON, a root locus and a frequency response.
+    Design(DesignArgs),
+}
+
+/// Arguments of `ampwright design`.
+#[derive(Debug, clap::Args)]
+pub struct DesignArgs {
+    /// The scenario (TOML) with a `[spec]` section.
+    pub scenario: PathBuf,
+    /// Replace the spec's 2 % settling time, seconds.
+    #[arg(long)]
+    pub settling_time_s: Option<f64>,
+    /// Replace the spec's overshoot, percent.
+    #[arg(long)]
+    pub overshoot_pct: Option<f64>,
+    /// Folder for the output files (created if missing).
+    #[arg(long, default_value = "ampwright-out")]
+    pub out: PathBuf,
+    /// Print the report as JSON instead of the table.
+    #[arg(long)]
+    pub json: bool,
 }
 
 /// Arguments of `ampwright simulate`.
@@ -62,5 +86,6 @@ pub fn main(args: impl IntoIterator<Item = OsString>) -> i32 {
     };
     match args.command {
         CommandArgs::Simulate(a) => simulate::run(&a),
+        CommandArgs::Design(a) => design::run(&a),
     }
 }

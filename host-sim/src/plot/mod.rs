@@ -1,6 +1,10 @@
 //! Pictures of a run, as SVG: one file per picture.
 
+pub mod frequency_response;
+pub mod root_locus;
 pub mod step_response;
 pub mod svg;
 
+pub use frequency_response::frequency_response_svg;
+pub use root_locus::root_locus_svg;
 pub use step_response::{StepPlot, step_response_svg};

@@ -68,6 +68,22 @@ impl<T: Real> OpenLoop<T> {
         }
     }
 
+    /// The PI's zero in z, `Kp / (Kp + Ki Ts)`.
+    pub fn pi_zero(&self) -> T {
+        self.k0 / self.k1
+    }
+
+    /// The measured-current plant `num / den`: numerator `[n1, n0]` (`n1 = 0`
+    /// without a filter) and the monic denominator's coefficients.
+    pub fn plant(&self) -> ([T; 2], &[T]) {
+        (self.num, &self.den[..=self.den_degree])
+    }
+
+    /// Whether the one-period delay (an open-loop pole at z = 0) is in the loop.
+    pub fn has_delay(&self) -> bool {
+        self.delay
+    }
+
     /// `L(z)` at a point.
     pub fn eval(&self, z: Complex<T>) -> Complex<T> {
         let c = Complex::real(self.k1).times(z).minus(Complex::real(self.k0));

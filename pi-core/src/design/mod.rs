@@ -98,6 +98,20 @@ impl<T: Real> Sampling<T> {
     pub fn filter_tau_s(&self) -> T {
         self.filter_tau_s
     }
+    /// The same sampling with another filter time constant (0: none; a
+    /// negative or NaN value also means none).
+    pub fn with_filter(self, filter_tau_s: T) -> Self {
+        let tau = if filter_tau_s.is_finite() && filter_tau_s > T::ZERO {
+            filter_tau_s
+        } else {
+            T::ZERO
+        };
+        Self {
+            filter_tau_s: tau,
+            ..self
+        }
+    }
+
     /// The same sampling at another period.
     pub fn with_period(self, period_s: T) -> Self {
         Self { period_s, ..self }
