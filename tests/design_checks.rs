@@ -62,6 +62,15 @@ struct Design {
     phase_margin_deg: Option<f64>,
     crossover_hz: Option<f64>,
     largest_stable_period_s: f64,
+    step_b1: StepRef,
+    step_b0: StepRef,
+}
+
+#[derive(serde::Deserialize)]
+struct StepRef {
+    overshoot: f64,
+    settling_time_s: f64,
+    rise_time_s: f64,
 }
 
 fn close(a: f64, b: f64, rel: f64) -> bool {
@@ -161,6 +170,32 @@ fn designs_and_analysis_match_python_control() {
                     "{what}: gain margin {gm} vs {reference}"
                 ),
                 (ours, theirs) => panic!("{what}: gain margin {ours:?} vs {theirs:?}"),
+            }
+            // The predicted step against forced_response / step_info, for both
+            // setpoint weights: overshoot closely, settling and rise to a sample
+            // (step_info reports sample times, we interpolate the rise).
+            let steps = (6.0 * c.settling / c.ts) as usize;
+            for (b, r) in [(1.0, &r.step_b1), (0.0, &r.step_b0)] {
+                let p = analysis::predict_step(&open, c.ts, steps, b);
+                assert!(
+                    (p.overshoot - r.overshoot).abs() < 1e-6,
+                    "{what} b {b}: overshoot {} vs {}",
+                    p.overshoot,
+                    r.overshoot
+                );
+                let ts = p.settling_time_s.unwrap();
+                assert!(
+                    (ts - r.settling_time_s).abs() <= c.ts * 1.0001,
+                    "{what} b {b}: settling {ts} vs {}",
+                    r.settling_time_s
+                );
+                if let Some(rise) = p.rise_time_s {
+                    assert!(
+                        (rise - r.rise_time_s).abs() <= c.ts * 1.0001,
+                        "{what} b {b}: rise {rise} vs {}",
+                        r.rise_time_s
+                    );
+                }
             }
             let ts_max = analysis::largest_stable_period(&plant, &sampling, &g).unwrap();
             assert!(

@@ -106,6 +106,33 @@ def direct_discrete(c):
     return kp, kp * ts / ki_ts
 
 
+def step_metrics(c, kp, ti, b):
+    """Unit setpoint step of the sampled loop with setpoint weight b, on the true
+    current (not the filtered one): control.forced_response and step_info."""
+    ts = c["ts"]
+    z = control.tf([1, 0], [1], ts)
+    ki_ts = kp / ti * ts
+    pi_err = kp + ki_ts * z / (z - 1)          # acts on e = r - y
+    pi_ref = (b - 1) * kp                       # extra proportional action on r
+    g_true = control.c2d(control.tf([1.0], [c["l"], c["r"]]), ts, method="zoh")
+    g_meas = control.c2d(measured_plant(c), ts, method="zoh")
+    d = (1 / z) if c["delay"] else control.tf([1], [1], ts)
+    # u = pi_err (r - ym) + pi_ref r ; i = g_true d u ; ym = g_meas d u
+    loop = pi_err * d * g_meas
+    u_from_r = (pi_err + pi_ref) / (1 + loop)
+    y = control.minreal(u_from_r * d * g_true, verbose=False)
+    n = int(6 * c["settling"] / ts)
+    t = np.arange(n) * ts
+    res = control.forced_response(y, T=t, U=np.ones(n))
+    out = np.asarray(res.outputs).reshape(-1)
+    info = control.step_info(out, T=t, yfinal=1.0, SettlingTimeThreshold=0.02, RiseTimeLimits=(0.1, 0.9))
+    return dict(
+        overshoot=float(max(0.0, out.max() - 1.0)),
+        settling_time_s=float(info["SettlingTime"]),
+        rise_time_s=float(info["RiseTime"]),
+    )
+
+
 def largest_stable_period(c, kp, ti):
     def stable(ts):
         cc = dict(c, ts=ts)
@@ -158,6 +185,8 @@ def case_values(c):
             phase_margin_deg=float(pm) if np.isfinite(pm) else None,
             crossover_hz=float(wgc) / (2 * math.pi) if np.isfinite(wgc) else None,
             largest_stable_period_s=float(largest_stable_period(c, kp, ti)),
+            step_b1=step_metrics(c, kp, ti, 1.0),
+            step_b0=step_metrics(c, kp, ti, 0.0),
         )
     return out
 

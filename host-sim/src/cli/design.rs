@@ -26,7 +26,22 @@ pub fn run(args: &DesignArgs) -> i32 {
     if let Some(os) = args.overshoot_pct {
         scenario.spec.overshoot_pct = Some(os);
     }
-    let report = match design_report::design(&scenario) {
+    let report = match design_report::basis(&scenario).and_then(|mut b| {
+        let set = |slot: &mut f64, v: Option<f64>| {
+            if let Some(v) = v {
+                *slot = v;
+            }
+        };
+        set(&mut b.resistance_ohm, args.resistance_ohm);
+        set(&mut b.inductance_h, args.inductance_h);
+        set(&mut b.period_s, args.control_period_s);
+        set(&mut b.filter_tau_s, args.filter_tau_s);
+        set(&mut b.supply_v, args.supply_v);
+        if let Some(d) = args.delay {
+            b.one_period_delay = d;
+        }
+        design_report::design_basis(&scenario.name, b)
+    }) {
         Ok(r) => r,
         Err(DesignFailure::Infeasible(why)) => {
             eprintln!("ampwright: {why}");

@@ -47,6 +47,25 @@ pub struct DesignArgs {
     /// Replace the spec's overshoot, percent.
     #[arg(long)]
     pub overshoot_pct: Option<f64>,
+    /// Replace the winding resistance, ohm.
+    #[arg(long)]
+    pub resistance_ohm: Option<f64>,
+    /// Replace the winding inductance, H.
+    #[arg(long)]
+    pub inductance_h: Option<f64>,
+    /// Replace the control period, s.
+    #[arg(long)]
+    pub control_period_s: Option<f64>,
+    /// Model the one-period computation delay or not (true/false), instead of
+    /// deriving it from the scenario's timing.
+    #[arg(long)]
+    pub delay: Option<bool>,
+    /// Replace the current filter's time constant, s (0: none).
+    #[arg(long)]
+    pub filter_tau_s: Option<f64>,
+    /// Replace the supply voltage, V.
+    #[arg(long)]
+    pub supply_v: Option<f64>,
     /// Folder for the output files (created if missing).
     #[arg(long, default_value = "ampwright-out")]
     pub out: PathBuf,
