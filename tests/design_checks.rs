@@ -366,16 +366,9 @@ proptest! {
     }
 }
 
-fn temp_dir(name: &str) -> std::path::PathBuf {
-    let d = std::env::temp_dir().join(format!("ampwright-design-{name}-{}", std::process::id()));
-    let _ = std::fs::remove_dir_all(&d);
-    std::fs::create_dir_all(&d).unwrap();
-    d
-}
-
 #[test]
 fn design_command_on_the_demo_writes_gains_json_and_both_pictures() {
-    let dir = temp_dir("ok");
+    let dir = ampwright_tests::temp_dir("design-ok");
     let scenario =
         std::path::PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("../host-sim/scenarios/carousel_step.toml");
     let args = [
@@ -420,7 +413,7 @@ fn design_command_on_the_demo_writes_gains_json_and_both_pictures() {
 
 #[test]
 fn an_infeasible_spec_exits_2() {
-    let dir = temp_dir("bad");
+    let dir = ampwright_tests::temp_dir("design-bad");
     let scenario =
         std::path::PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("../host-sim/scenarios/carousel_step.toml");
     let s = scenario.to_str().unwrap();

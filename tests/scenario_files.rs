@@ -135,16 +135,9 @@ fn syntax_errors_point_at_the_line() {
     }
 }
 
-fn temp_dir(name: &str) -> PathBuf {
-    let d = std::env::temp_dir().join(format!("ampwright-test-{name}-{}", std::process::id()));
-    let _ = std::fs::remove_dir_all(&d);
-    std::fs::create_dir_all(&d).unwrap();
-    d
-}
-
 #[test]
 fn simulate_command_writes_csv_and_svg_and_exits_0() {
-    let dir = temp_dir("ok");
+    let dir = ampwright_tests::temp_dir("ok");
     let scenario = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("../host-sim/scenarios/carousel_step.toml");
     let out = dir.join("out");
     let args = [
@@ -166,7 +159,7 @@ fn simulate_command_writes_csv_and_svg_and_exits_0() {
 
 #[test]
 fn simulate_command_exits_2_on_a_malformed_scenario() {
-    let dir = temp_dir("bad");
+    let dir = ampwright_tests::temp_dir("bad");
     let bad = dir.join("bad.toml");
     std::fs::write(&bad, demo_with("shunt_ohm = 0.010", "shunt_ohm = 0.0")).unwrap();
     let args = [

@@ -9,3 +9,11 @@ pub fn cases(default: u32) -> u32 {
         .and_then(|v| v.parse().ok())
         .unwrap_or(default)
 }
+
+/// A fresh, empty folder under the system's temporary folder for one test.
+pub fn temp_dir(name: &str) -> std::path::PathBuf {
+    let d = std::env::temp_dir().join(format!("ampwright-test-{name}-{}", std::process::id()));
+    let _ = std::fs::remove_dir_all(&d);
+    std::fs::create_dir_all(&d).unwrap_or_else(|e| panic!("cannot create {}: {e}", d.display()));
+    d
+}

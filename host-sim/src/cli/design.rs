@@ -79,17 +79,7 @@ fn write_files(args: &DesignArgs, report: &design_report::DesignReport) -> Resul
             dir.display()
         )
     })?;
-    let stem: String = report
-        .name
-        .chars()
-        .map(|c| {
-            if c.is_ascii_alphanumeric() || c == '-' || c == '_' {
-                c
-            } else {
-                '_'
-            }
-        })
-        .collect();
+    let stem = super::file_stem(&report.name);
     let mut written = Vec::new();
     let mut put = |name: String, body: String| -> Result<(), String> {
         let path = dir.join(name);

@@ -93,6 +93,21 @@ pub struct SimulateArgs {
     pub quiet: bool,
 }
 
+/// A file name from a scenario name: letters, digits, `-` and `_` kept.
+pub fn file_stem(name: &str) -> String {
+    let s: String = name
+        .chars()
+        .map(|c| {
+            if c.is_ascii_alphanumeric() || c == '-' || c == '_' {
+                c
+            } else {
+                '_'
+            }
+        })
+        .collect();
+    if s.is_empty() { "scenario".into() } else { s }
+}
+
 /// Runs the command line; returns the process exit code.
 pub fn main(args: impl IntoIterator<Item = OsString>) -> i32 {
     let args = match Args::try_parse_from(args) {

@@ -84,7 +84,7 @@ fn write_files(
             dir.display()
         )
     })?;
-    let stem = safe_stem(&scenario.name);
+    let stem = super::file_stem(&scenario.name);
     let mut written = Vec::new();
     let csv = dir.join(format!("{stem}.csv"));
     write_with(&csv, |f| trace.write_csv(f))?;
@@ -112,19 +112,4 @@ fn write_with(path: &Path, body: impl FnOnce(&mut dyn Write) -> std::io::Result<
     let mut w = std::io::BufWriter::new(file);
     body(&mut w).map_err(fail)?;
     w.flush().map_err(fail)
-}
-
-/// A file name from a scenario name: letters, digits, `-` and `_` kept.
-fn safe_stem(name: &str) -> String {
-    let s: String = name
-        .chars()
-        .map(|c| {
-            if c.is_ascii_alphanumeric() || c == '-' || c == '_' {
-                c
-            } else {
-                '_'
-            }
-        })
-        .collect();
-    if s.is_empty() { "scenario".into() } else { s }
 }
