@@ -1,7 +1,5 @@
 //! `ampwright design <scenario>`.
 
-use std::fs;
-
 use pi_core::design::Spec;
 use pi_core::design::analysis::{self, OpenLoop};
 use pi_core::design::discrete::target_pole;
@@ -73,22 +71,12 @@ pub fn run(args: &DesignArgs) -> i32 {
 
 fn write_files(args: &DesignArgs, report: &design_report::DesignReport) -> Result<Vec<String>, String> {
     let dir = &args.out;
-    fs::create_dir_all(dir).map_err(|e| {
-        format!(
-            "cannot create the output folder {}: {e}; choose another with --out",
-            dir.display()
-        )
-    })?;
+    super::create_out_dir(dir)?;
     let stem = super::file_stem(&report.name);
     let mut written = Vec::new();
     let mut put = |name: String, body: String| -> Result<(), String> {
         let path = dir.join(name);
-        fs::write(&path, body).map_err(|e| {
-            format!(
-                "cannot write {}: {e}; check the folder given with --out",
-                path.display()
-            )
-        })?;
+        super::write_with(&path, |f| f.write_all(body.as_bytes()))?;
         written.push(path.display().to_string());
         Ok(())
     };

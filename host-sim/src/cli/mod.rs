@@ -108,6 +108,34 @@ pub fn file_stem(name: &str) -> String {
     if s.is_empty() { "scenario".into() } else { s }
 }
 
+/// Creates the output folder, or says why not in one sentence.
+pub fn create_out_dir(dir: &std::path::Path) -> Result<(), String> {
+    std::fs::create_dir_all(dir).map_err(|e| {
+        format!(
+            "cannot create the output folder {}: {e}; choose another with --out",
+            dir.display()
+        )
+    })
+}
+
+/// Writes a file through a buffer, or says why not in one sentence.
+pub fn write_with(
+    path: &std::path::Path,
+    body: impl FnOnce(&mut dyn std::io::Write) -> std::io::Result<()>,
+) -> Result<(), String> {
+    use std::io::Write;
+    let fail = |e: std::io::Error| {
+        format!(
+            "cannot write {}: {e}; check the folder given with --out",
+            path.display()
+        )
+    };
+    let file = std::fs::File::create(path).map_err(fail)?;
+    let mut w = std::io::BufWriter::new(file);
+    body(&mut w).map_err(fail)?;
+    w.flush().map_err(fail)
+}
+
 /// Runs the command line; returns the process exit code.
 pub fn main(args: impl IntoIterator<Item = OsString>) -> i32 {
     let args = match Args::try_parse_from(args) {

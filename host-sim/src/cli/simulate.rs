@@ -1,8 +1,6 @@
 //! `ampwright simulate <scenario>`.
 
-use std::fs;
 use std::io::Write;
-use std::path::Path;
 
 use crate::cli::SimulateArgs;
 use crate::cli::progress::Progress;
@@ -78,38 +76,20 @@ fn write_files(
     rep: &report::Report,
 ) -> Result<Vec<String>, String> {
     let dir = &args.out;
-    fs::create_dir_all(dir).map_err(|e| {
-        format!(
-            "cannot create the output folder {}: {e}; choose another with --out",
-            dir.display()
-        )
-    })?;
+    super::create_out_dir(dir)?;
     let stem = super::file_stem(&scenario.name);
     let mut written = Vec::new();
     let csv = dir.join(format!("{stem}.csv"));
-    write_with(&csv, |f| trace.write_csv(f))?;
+    super::write_with(&csv, |f| trace.write_csv(f))?;
     written.push(csv.display().to_string());
     let svg = dir.join(format!("{stem}.svg"));
     let doc = step_response_svg(trace, &report::plot_of(scenario, rep));
-    write_with(&svg, |f| f.write_all(doc.as_bytes()))?;
+    super::write_with(&svg, |f| f.write_all(doc.as_bytes()))?;
     written.push(svg.display().to_string());
     if args.edges {
         let edges = dir.join(format!("{stem}-edges.csv"));
-        write_with(&edges, |f| trace.write_edges_csv(f))?;
+        super::write_with(&edges, |f| trace.write_edges_csv(f))?;
         written.push(edges.display().to_string());
     }
     Ok(written)
-}
-
-fn write_with(path: &Path, body: impl FnOnce(&mut dyn Write) -> std::io::Result<()>) -> Result<(), String> {
-    let fail = |e: std::io::Error| {
-        format!(
-            "cannot write {}: {e}; check the folder given with --out",
-            path.display()
-        )
-    };
-    let file = fs::File::create(path).map_err(fail)?;
-    let mut w = std::io::BufWriter::new(file);
-    body(&mut w).map_err(fail)?;
-    w.flush().map_err(fail)
 }
