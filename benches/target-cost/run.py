@@ -5,8 +5,10 @@ Builds the probe (src/main.rs) for both targets, runs each under QEMU with one
 instruction per translation block and an execution trace (-singlestep
 -d exec,nochain), and counts, for every measured call, the trace entries from
 `mark_start` to `mark_end`, less those of the empty probe. Prints per target
-and scenario the instructions per call (min / mean / max) and the size of each
-probe's code, and fails if a figure exceeds budgets.txt.
+and scenario the instructions per call (min / mean / max), the deepest stack use
+of the calls (the probe paints the free stack before a scenario and scans it
+after), and the size of each probe's own code, and fails if an instruction
+count exceeds budgets.txt.
 
 Usage: run.py QEMU_SYSTEM_ARM [--update-budgets]   (fetch-qemu.sh prints the path)
 """
@@ -70,7 +72,13 @@ def run(qemu, target, machine):
         sys.exit(f"{target}: the probe exited with {done.returncode}: {done.stdout} {done.stderr}")
     # Semihosting console output arrives on stderr with -nographic.
     console = done.stdout + done.stderr
-    names = [l.split()[1] for l in console.splitlines() if l.startswith("scenario ")]
+    names = []
+    stack = {}
+    for l in console.splitlines():
+        if l.startswith("scenario "):
+            names.append(l.split()[1])
+        elif l.startswith("stack ") and names:
+            stack[names[-1]] = int(l.split()[1])
     syms = symbols(elf)
     start, end, printer = syms["mark_start"][0], syms["mark_end"][0], syms["announce"][0]
     pattern = re.compile(r"\[[0-9a-f]+/([0-9a-f]+)/")
@@ -108,7 +116,7 @@ def run(qemu, target, machine):
     base = min(empty_calls) - len(empty_body) // len(empty_calls)
     per = {name: [c - base for c in v] for name, v in result.items()}
     sizes = {PROBES[n]: syms.get(PROBES[n], (0, 0))[1] for n in per}
-    return per, sizes
+    return per, sizes, stack
 
 
 def rustc_version():
@@ -126,15 +134,18 @@ def main():
             t, s, n = line.split()
             budgets[(t, s)] = int(n)
     print(f"instructions per call, exact (QEMU -singlestep trace); {rustc_version()}, release, opt-level 3, LTO")
-    print(f"{'target':<12} {'scenario':<24} {'calls':>5} {'min':>6} {'mean':>8} {'max':>6} {'budget':>7}  probe bytes")
+    print("stack B: deepest stack use of the scenario's calls below the harness (painted-stack scan, within 8 bytes)")
+    print(f"{'target':<12} {'scenario':<24} {'calls':>5} {'min':>6} {'mean':>8} {'max':>6} {'budget':>7} {'stack B':>8}  probe bytes")
     failed = []
     measured = {}
     for target, machine, label in TARGETS:
-        per, sizes = run(qemu, target, machine)
+        per, sizes, stack = run(qemu, target, machine)
         for name, v in per.items():
             b = budgets.get((label, name))
             measured[(label, name)] = max(v)
-            print(f"{label:<12} {name:<24} {len(v):>5} {min(v):>6} {statistics.mean(v):>8.1f} {max(v):>6} {b if b else '-':>7}  {sizes[PROBES[name]]}")
+            st = stack.get(name)
+            st = "-" if st is None else (f"<={st}" if st <= 16 else str(st))
+            print(f"{label:<12} {name:<24} {len(v):>5} {min(v):>6} {statistics.mean(v):>8.1f} {max(v):>6} {b if b else '-':>7} {st:>8}  {sizes[PROBES[name]]}")
             if b is not None and max(v) > b:
                 failed.append(f"{label} {name}: {max(v)} instructions, budget {b}")
     if "--update-budgets" in sys.argv:

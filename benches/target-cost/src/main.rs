@@ -63,6 +63,56 @@ extern "C" fn mark_end() {
     unsafe { asm!("nop", "nop", options(nomem, nostack)) };
 }
 
+unsafe extern "C" {
+    static _stack_bottom: u32;
+}
+
+const PAINT: u32 = 0xA5A5_A5A5;
+
+/// Fills the unused stack below the caller's frame with a pattern; returns
+/// the stack pointer there.
+#[inline(never)]
+fn paint_stack() -> u32 {
+    let sp: u32;
+    // SAFETY: reads the stack pointer.
+    unsafe { asm!("mov {}, sp", out(reg) sp, options(nomem, nostack)) };
+    let mut p = &raw const _stack_bottom as u32;
+    // A leaf with no frame below its stack pointer: leave 16 bytes of margin.
+    while p + 16 < sp {
+        // SAFETY: RAM between the end of .bss and below the live stack is unused.
+        unsafe { (p as *mut u32).write_volatile(PAINT) };
+        p += 4;
+    }
+    sp
+}
+
+/// Prints `stack <bytes>`: the deepest stack use below `sp0` since it was painted.
+#[inline(never)]
+fn report_stack(sp0: u32) {
+    let mut p = &raw const _stack_bottom as u32;
+    // SAFETY: reading the painted region, below the live stack.
+    while p < sp0 && unsafe { (p as *const u32).read_volatile() } == PAINT {
+        p += 4;
+    }
+    let mut n = sp0.saturating_sub(p);
+    let mut digits = [0u8; 10];
+    let mut k = digits.len();
+    loop {
+        k -= 1;
+        digits[k] = b'0' + (n % 10) as u8;
+        n /= 10;
+        if n == 0 || k == 0 {
+            break;
+        }
+    }
+    let d = &digits[k..];
+    let mut out = [0u8; 20];
+    out[..6].copy_from_slice(b"stack ");
+    out[6..6 + d.len()].copy_from_slice(d);
+    out[6 + d.len()] = b'\n';
+    print(&out[..7 + d.len()]);
+}
+
 /// Everything a probe may touch.
 struct Bench {
     pi: PiController,
@@ -164,18 +214,23 @@ fn main() -> u32 {
         measure(&mut b, probe_empty);
     }
     announce(b"scenario pi_linear\n");
+    let sp0 = paint_stack();
     for k in 0..20 {
         b.measured_a = 1.45 + 0.001 * k as f32;
         measure(&mut b, probe_pi_update);
     }
+    report_stack(sp0);
     announce(b"scenario pi_saturated_high\n");
+    let sp0 = paint_stack();
     b.pi.reset();
     for _ in 0..20 {
         b.setpoint_a = 4.0;
         b.measured_a = -2.0;
         measure(&mut b, probe_pi_update);
     }
+    report_stack(sp0);
     announce(b"scenario pi_saturated_low\n");
+    let sp0 = paint_stack();
     for _ in 0..20 {
         b.setpoint_a = -4.0;
         b.measured_a = 2.0;
@@ -183,7 +238,9 @@ fn main() -> u32 {
     }
     // The assembled loop, closed against a first-order winding model (1.9 ohm,
     // 2.4 mH, 50 us, one-sample delay) computed between the measured calls.
+    report_stack(sp0);
     announce(b"scenario loop_closed_run\n");
+    let sp0 = paint_stack();
     let _ = b.cl.apply(Command::Enable);
     let _ = b.cl.apply(Command::SetCurrent(1.5));
     let (a, gain) = (0.960_9f32, 0.020_57f32); // exp(-R Ts / L), (1 - a) / R
@@ -195,15 +252,20 @@ fn main() -> u32 {
         i = a * i + gain * pending_v;
         pending_v = b.cmd.signed_duty() * b.bus_v;
     }
+    report_stack(sp0);
     announce(b"scenario loop_faulted\n");
+    let sp0 = paint_stack();
     b.counts = 4095; // sensor at the rail: faults on the first tick
     for _ in 0..20 {
         measure(&mut b, probe_loop_tick);
     }
+    report_stack(sp0);
     announce(b"scenario design_direct_discrete\n");
+    let sp0 = paint_stack();
     for _ in 0..3 {
         measure(&mut b, probe_design);
     }
+    report_stack(sp0);
     announce(b"done\n");
     black_box(b.out_v + b.gains_kp);
     0
