@@ -37,6 +37,68 @@ PROBES = {
 }
 TIMEOUT_S = 120
 
+# Estimated cycles per instruction, a simplification of the instruction timing
+# tables in Arm's Cortex-M4 and Cortex-M0 Technical Reference Manuals (cited
+# from memory): no wait states, no pipelining of back-to-back loads, a taken
+# branch refills the pipeline. These are estimates, not measurements.
+def cycles_m4(mn, ops, taken):
+    base = mn.split(".")[0]
+    regs = ops.count(",") + 1 if "{" in ops else 0
+    if base.startswith(("vdiv", "vsqrt")):
+        return 14
+    if base.startswith(("vmla", "vmls", "vfma", "vfms", "vnmla", "vnmls")):
+        return 3
+    if base.startswith(("vldr", "vstr")):
+        return 2
+    if base.startswith(("vpush", "vpop", "vldm", "vstm")):
+        return 1 + regs
+    if base in ("push", "stmdb", "stm", "stmia", "ldm", "ldmia"):
+        return 1 + regs
+    if base == "pop":
+        return 1 + regs + (2 if "pc" in ops else 0)
+    if base.startswith(("ldrd", "strd")):
+        return 3
+    if base.startswith(("ldr", "str")):
+        return 2
+    if base in ("sdiv", "udiv"):
+        return 7
+    if base.startswith(("b", "cb")) and not base.startswith(("bic", "bfi", "bfc")) or base in ("bx", "blx"):
+        return 3 if taken or base in ("bl", "blx", "bx") else 1
+    return 1
+
+
+def cycles_m0(mn, ops, taken):
+    base = mn.split(".")[0]
+    regs = ops.count(",") + 1 if "{" in ops else 0
+    if base in ("push", "stm", "stmia", "ldm", "ldmia"):
+        return 1 + regs
+    if base == "pop":
+        return 1 + regs + (3 if "pc" in ops else 0)
+    if base.startswith(("ldr", "str")):
+        return 2
+    if base == "bl":
+        return 4
+    if base in ("bx", "blx"):
+        return 3
+    if base.startswith("b") and not base.startswith("bic"):
+        return 3 if taken else 1
+    return 1
+
+
+def disassembly(objdump, elf):
+    """Address -> (mnemonic, operands, length in bytes)."""
+    text = subprocess.run([objdump, "-d", "--no-show-raw-insn", str(elf)], capture_output=True, text=True, check=True).stdout
+    out = {}
+    rows = []
+    for line in text.splitlines():
+        m = re.match(r"\s+([0-9a-f]+):\t(\S+)\t?(.*)", line)
+        if m:
+            rows.append((int(m.group(1), 16), m.group(2), m.group(3)))
+    for k, (addr, mn, ops) in enumerate(rows):
+        length = rows[k + 1][0] - addr if k + 1 < len(rows) else 2
+        out[addr] = (mn, ops, length)
+    return out
+
 
 def symbols(elf):
     """Function symbols of an ELF32 file: name -> (address, size)."""
@@ -59,7 +121,7 @@ def symbols(elf):
     return out
 
 
-def run(qemu, target, machine):
+def run(qemu, objdump, target, machine):
     env = dict(os.environ)
     subprocess.run(["cargo", "build", "--release", "--locked", "--target", target], cwd=HERE, check=True, env=env)
     elf = HERE / "target" / target / "release" / "target-cost"
@@ -85,6 +147,8 @@ def run(qemu, target, machine):
     e_lo, e_size = syms["probe_empty"]
     empty_body = []
     counts = {}
+    traces = {}
+    pcs = []
     scenario = -1
     inside = None
     prev_pc = None
@@ -96,11 +160,14 @@ def run(qemu, target, machine):
             pc = int(m.group(1), 16)
             if pc == start:
                 inside = 0
+                pcs = []
             elif pc == end and inside is not None:
                 counts.setdefault(scenario, []).append(inside)
+                traces.setdefault(scenario, []).append(pcs)
                 inside = None
             elif inside is not None:
                 inside += 1
+                pcs.append(pc)
                 if scenario == 0 and e_lo <= pc < e_lo + e_size:
                     empty_body.append(pc)
             # A scenario starts at each entry into `announce`.
@@ -108,15 +175,32 @@ def run(qemu, target, machine):
                 scenario += 1
             prev_pc = pc
     result = {}
+    call_pcs = {}
     for k, name in enumerate(names):
         if k in counts:
             result[name] = counts[k]
+            call_pcs[name] = traces[k]
+    # Estimated cycles per call, less those of the empty probe's call.
+    dis = disassembly(objdump, elf)
+    table = cycles_m4 if target.startswith("thumbv7em") else cycles_m0
+
+    def cycles(seq):
+        total = 0
+        for j, pc in enumerate(seq):
+            mn, ops, length = dis.get(pc, ("?", "", 2))
+            nxt = seq[j + 1] if j + 1 < len(seq) else None
+            total += table(mn, ops, nxt is not None and nxt != pc + length)
+        return total
+
+    est = {name: [cycles(seq) for seq in v] for name, v in call_pcs.items()}
+    empty_cycles = min(est.pop("empty"))
+    est = {name: [c - empty_cycles for c in v] for name, v in est.items()}
     # raw(f) - raw(empty) leaves out the empty probe's own instructions: add them.
     empty_calls = result.pop("empty")
     base = min(empty_calls) - len(empty_body) // len(empty_calls)
     per = {name: [c - base for c in v] for name, v in result.items()}
     sizes = {PROBES[n]: syms.get(PROBES[n], (0, 0))[1] for n in per}
-    return per, sizes, stack
+    return per, sizes, stack, est
 
 
 def rustc_version():
@@ -127,6 +211,7 @@ def main():
     if len(sys.argv) < 2:
         sys.exit("give the path of qemu-system-arm")
     qemu = sys.argv[1]
+    objdump = str(Path(qemu).resolve().parent / "root" / "usr" / "bin" / "arm-none-eabi-objdump")
     budgets = {}
     bfile = HERE / "budgets.txt"
     for line in bfile.read_text().splitlines():
@@ -134,18 +219,19 @@ def main():
             t, s, n = line.split()
             budgets[(t, s)] = int(n)
     print(f"instructions per call, exact (QEMU -singlestep trace); {rustc_version()}, release, opt-level 3, LTO")
+    print("est cyc: estimated cycles per call (mean), from a simplified per-instruction table; an estimate")
     print("stack B: deepest stack use of the scenario's calls below the harness (painted-stack scan, within 8 bytes)")
-    print(f"{'target':<12} {'scenario':<24} {'calls':>5} {'min':>6} {'mean':>8} {'max':>6} {'budget':>7} {'stack B':>8}  probe bytes")
+    print(f"{'target':<12} {'scenario':<24} {'calls':>5} {'min':>6} {'mean':>8} {'max':>6} {'budget':>7} {'est cyc':>8} {'stack B':>8}  probe bytes")
     failed = []
     measured = {}
     for target, machine, label in TARGETS:
-        per, sizes, stack = run(qemu, target, machine)
+        per, sizes, stack, est = run(qemu, objdump, target, machine)
         for name, v in per.items():
             b = budgets.get((label, name))
             measured[(label, name)] = max(v)
             st = stack.get(name)
             st = "-" if st is None else (f"<={st}" if st <= 16 else str(st))
-            print(f"{label:<12} {name:<24} {len(v):>5} {min(v):>6} {statistics.mean(v):>8.1f} {max(v):>6} {b if b else '-':>7} {st:>8}  {sizes[PROBES[name]]}")
+            print(f"{label:<12} {name:<24} {len(v):>5} {min(v):>6} {statistics.mean(v):>8.1f} {max(v):>6} {b if b else '-':>7} {round(statistics.mean(est[name])):>8} {st:>8}  {sizes[PROBES[name]]}")
             if b is not None and max(v) > b:
                 failed.append(f"{label} {name}: {max(v)} instructions, budget {b}")
     if "--update-budgets" in sys.argv:
