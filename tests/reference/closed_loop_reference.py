@@ -24,7 +24,6 @@ The case values are invented (the demo's AW-C24 winding and two others).
 Package versions are pinned in requirements.txt beside this script.
 """
 
-import json
 import math
 import sys
 from pathlib import Path
@@ -32,6 +31,7 @@ from pathlib import Path
 import control
 import numpy as np
 import scipy
+from reference_io import write_or_check
 
 HERE = Path(__file__).resolve().parent
 OUT = HERE / "closed_loop_reference.json"
@@ -96,21 +96,7 @@ def generate():
 
 
 def main():
-    fresh = generate()
-    if "--check" in sys.argv:
-        kept = json.loads(OUT.read_text())
-        worst = 0.0
-        for a, b in zip(fresh["cases"], kept["cases"], strict=True):
-            if a["name"] != b["name"] or len(a["current_a"]) != len(b["current_a"]):
-                sys.exit(f"case {a['name']} changed shape; regenerate {OUT.name}")
-            for u, v in zip(a["current_a"], b["current_a"]):
-                worst = max(worst, abs(u - v))
-        print(f"reference values reproduced; largest difference {worst:.3e} A")
-        if worst > 1e-12:
-            sys.exit(f"the committed {OUT.name} differs from a fresh run by {worst:.3e} A; regenerate it")
-        return
-    OUT.write_text(json.dumps(fresh, indent=1) + "\n")
-    print(f"wrote {OUT}")
+    write_or_check(OUT, generate(), "closed-loop", 1e-12)
 
 
 if __name__ == "__main__":

@@ -19,7 +19,6 @@ Usage: design_reference.py [--check]   (see closed_loop_reference.py)
 Case values are invented.
 """
 
-import json
 import math
 import sys
 from pathlib import Path
@@ -28,6 +27,7 @@ import control
 import numpy as np
 import scipy
 import scipy.signal
+from reference_io import write_or_check
 
 HERE = Path(__file__).resolve().parent
 OUT = HERE / "design_reference.json"
@@ -204,31 +204,8 @@ def generate():
     }
 
 
-def flat(v):
-    if isinstance(v, dict):
-        for k in sorted(v):
-            yield from flat(v[k])
-    elif isinstance(v, list):
-        for x in v:
-            yield from flat(x)
-    elif isinstance(v, (int, float)) and not isinstance(v, bool):
-        yield float(v)
-
-
 def main():
-    fresh = generate()
-    if "--check" in sys.argv:
-        kept = json.loads(OUT.read_text())
-        a, b = list(flat(fresh["cases"])), list(flat(kept["cases"]))
-        if len(a) != len(b):
-            sys.exit(f"{OUT.name} has a different shape from a fresh run; regenerate it")
-        worst = max((abs(x - y) / max(1.0, abs(y)) for x, y in zip(a, b)), default=0.0)
-        print(f"design reference values reproduced; largest relative difference {worst:.3e}")
-        if worst > 1e-9:
-            sys.exit(f"the committed {OUT.name} differs from a fresh run by {worst:.3e}; regenerate it")
-        return
-    OUT.write_text(json.dumps(fresh, indent=1) + "\n")
-    print(f"wrote {OUT}")
+    write_or_check(OUT, generate(), "design", 1e-9)
 
 
 if __name__ == "__main__":
