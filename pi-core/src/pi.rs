@@ -29,14 +29,34 @@
 //! * [`AntiWindup::BackCalculation`] (the default): the integrator is pulled back
 //!   by `Ts / Tt * (u_sat - u_unsat)` each step, with tracking time `Tt`.
 //!
-//! Whatever the mode, the integrator is kept inside the output range after every
-//! step, so the integrator alone can never ask for more than the output can give.
+//! While the output is saturated the integrator is also held on the far side of
+//! the range the output needs at steady state, `[lo, hi] + Kp (1 - b) r`: saturated
+//! high, no lower than `lo + Kp (1 - b) r` (back-calculation would otherwise take
+//! it far below when the proportional part alone spans more than the range);
+//! saturated low, no higher than `hi + Kp (1 - b) r`. Clamping holds it inside
+//! both edges. While the output is inside its limits the integrator is left
+//! alone, so the loop is linear there.
 //!
 //! # Bad input
 //!
-//! If the error `r - y` is NaN or infinite the update returns 0 V and leaves the
+//! If the setpoint or the measurement is NaN or infinite, or they are so large
+//! that `r - y` or `P + I` overflows, the update returns 0 V and leaves the
 //! integrator untouched; the supervisor in the assembled loop faults on such a
 //! reading before it reaches here.
+//!
+//! # Retuning
+//!
+//! [`PiController::retune`] takes effect at the next update, which first moves
+//! the integrator by the change of the proportional part at its own setpoint and
+//! measurement: `P + I` is carried over, so the output moves only by the change of
+//! the integral step.
+//!
+//! # Cost
+//!
+//! The common configuration (backward Euler, back-calculation, no retune
+//! waiting) runs inline; trapezoidal integration, clamping and the update that
+//! hands a retune over take an out-of-line path. The README's performance
+//! section has the instruction counts of each.
 //!
 //! ```
 //! use pi_core::pi::{OutputLimits, PiConfig, PiController, PiGains};
@@ -337,14 +357,11 @@ struct Coefficients {
     ki_step: f32,
     /// `Ts / Tt` for back-calculation, unused for clamping.
     tracking: f32,
-    tustin: bool,
-    back_calculation: bool,
 }
 
 impl Coefficients {
     fn from_config(c: &PiConfig) -> Self {
         let g = c.gains;
-        let tustin = c.rule == IntegratorRule::Tustin;
         let ki_ts = g.ki_v_per_a_s * c.period_s;
         let tracking = match c.tracking_time_s() {
             Some(tt) => c.period_s / tt,
@@ -354,12 +371,31 @@ impl Coefficients {
             kp: g.kp_v_per_a,
             kp_b: g.kp_v_per_a * g.setpoint_weight,
             kp_unweighted: g.kp_v_per_a * (1.0 - g.setpoint_weight),
-            ki_step: if tustin { 0.5 * ki_ts } else { ki_ts },
+            ki_step: if c.rule == IntegratorRule::Tustin {
+                0.5 * ki_ts
+            } else {
+                ki_ts
+            },
             tracking,
-            tustin,
-            back_calculation: matches!(c.anti_windup, AntiWindup::BackCalculation { .. }),
         }
     }
+
+    /// The proportional part `Kp (b r - y)`, volts.
+    #[inline(always)]
+    fn proportional(&self, setpoint_a: f32, measured_a: f32) -> f32 {
+        self.kp_b * setpoint_a - self.kp * measured_a
+    }
+}
+
+/// Which update path a controller takes; any bit set leaves the common path
+/// (backward Euler, back-calculation, no retune waiting) for the general one.
+mod path {
+    /// Trapezoidal integration: the update also needs the previous error.
+    pub const TUSTIN: u8 = 1;
+    /// Conditional integration instead of back-calculation.
+    pub const CLAMPING: u8 = 2;
+    /// New gains wait to be handed over at the next update.
+    pub const RETUNE: u8 = 4;
 }
 
 /// Clamp without the panic that `f32::clamp` carries for `lo > hi` or NaN bounds.
@@ -373,41 +409,49 @@ pub(crate) fn clamp(x: f32, lo: f32, hi: f32) -> f32 {
 /// The PI controller with its state.
 #[derive(Clone, Debug)]
 pub struct PiController {
-    config: PiConfig,
     k: Coefficients,
+    /// The configured output limits, copied here for the update.
+    min_v: f32,
+    max_v: f32,
     integrator_v: f32,
+    /// The last update's unlimited output `P + I`; above the output it saturated
+    /// high, below it saturated low.
+    demand_v: f32,
+    output_v: f32,
     prev_error_a: f32,
-    last_setpoint_a: f32,
-    last_measured_a: f32,
-    last_output_v: f32,
-    last_min_v: f32,
-    last_max_v: f32,
-    saturation: Saturation,
+    path: u8,
+    config: PiConfig,
 }
 
 impl PiController {
     /// A controller at rest (integrator 0 V).
     pub fn new(config: PiConfig) -> Self {
+        let mut path = 0;
+        if config.rule == IntegratorRule::Tustin {
+            path |= path::TUSTIN;
+        }
+        if config.anti_windup == AntiWindup::Clamping {
+            path |= path::CLAMPING;
+        }
         Self {
             k: Coefficients::from_config(&config),
-            config,
+            min_v: config.limits.min_v,
+            max_v: config.limits.max_v,
             integrator_v: 0.0,
+            demand_v: 0.0,
+            output_v: 0.0,
             prev_error_a: 0.0,
-            last_setpoint_a: 0.0,
-            last_measured_a: 0.0,
-            last_output_v: 0.0,
-            last_min_v: config.limits.min_v,
-            last_max_v: config.limits.max_v,
-            saturation: Saturation::None,
+            path,
+            config,
         }
     }
 
     /// One control step with the configured limits; returns the voltage to apply.
     #[inline]
     pub fn update(&mut self, setpoint_a: f32, measured_a: f32) -> f32 {
-        let l = self.config.limits;
         // The configured limits are validated already: no need to intersect them.
-        self.step(setpoint_a, measured_a, l.min_v, l.max_v)
+        let (lo, hi) = (self.min_v, self.max_v);
+        self.step(setpoint_a, measured_a, lo, hi)
     }
 
     /// One control step with limits narrower than the configured ones for this step
@@ -418,91 +462,194 @@ impl PiController {
     /// the configured one.
     #[inline]
     pub fn update_within(&mut self, setpoint_a: f32, measured_a: f32, min_v: f32, max_v: f32) -> f32 {
-        let l = self.config.limits;
-        let max_v = if max_v.is_nan() { l.max_v } else { max_v };
-        let min_v = if min_v.is_nan() { l.min_v } else { min_v };
-        let hi = clamp(max_v, l.min_v, l.max_v);
-        let lo = clamp(min_v, l.min_v, hi);
-        self.step(setpoint_a, measured_a, lo, hi)
+        // Written so that a NaN bound fails the comparison and takes the configured one.
+        let lo = if min_v > self.min_v { min_v } else { self.min_v };
+        let hi = if max_v < self.max_v { max_v } else { self.max_v };
+        if lo <= hi {
+            self.step(setpoint_a, measured_a, lo, hi)
+        } else {
+            // Empty: both onto the upper bound, kept inside the configured range.
+            let v = if hi > self.min_v { hi } else { self.min_v };
+            self.step(setpoint_a, measured_a, v, v)
+        }
     }
 
-    /// The control law with limits `lo <= hi` already inside the configured range.
+    /// One control step with limits the caller knows are ordered (`min_v <= max_v`)
+    /// and inside the configured range, so no intersection is needed.
+    #[inline]
+    pub(crate) fn update_inside(&mut self, setpoint_a: f32, measured_a: f32, min_v: f32, max_v: f32) -> f32 {
+        self.step(setpoint_a, measured_a, min_v, max_v)
+    }
+
+    /// One step with limits `lo <= hi` already inside the configured range: the
+    /// common configuration inline, the others out of line.
     #[inline(always)]
     fn step(&mut self, setpoint_a: f32, measured_a: f32, lo: f32, hi: f32) -> f32 {
-        let e = setpoint_a - measured_a;
-        if !e.is_finite() {
-            self.saturation = Saturation::None;
-            self.last_output_v = 0.0;
-            return 0.0;
+        if self.path == 0 {
+            self.law::<false, false>(setpoint_a, measured_a, lo, hi)
+        } else {
+            self.step_general(setpoint_a, measured_a, lo, hi)
         }
+    }
+
+    /// Trapezoidal integration, clamping, and the update that hands a retune over.
+    #[cold]
+    #[inline(never)]
+    fn step_general(&mut self, setpoint_a: f32, measured_a: f32, lo: f32, hi: f32) -> f32 {
+        if self.path & path::RETUNE != 0 && !self.hand_over(setpoint_a, measured_a) {
+            return self.refuse();
+        }
+        match (self.path & path::TUSTIN != 0, self.path & path::CLAMPING != 0) {
+            (false, false) => self.law::<false, false>(setpoint_a, measured_a, lo, hi),
+            (false, true) => self.law::<false, true>(setpoint_a, measured_a, lo, hi),
+            (true, false) => self.law::<true, false>(setpoint_a, measured_a, lo, hi),
+            (true, true) => self.law::<true, true>(setpoint_a, measured_a, lo, hi),
+        }
+    }
+
+    /// The control law, one body for every rule and anti-windup scheme (the
+    /// choices are compile-time here, so the common path carries none of the others).
+    #[inline(always)]
+    fn law<const TUSTIN: bool, const CLAMPING: bool>(
+        &mut self,
+        setpoint_a: f32,
+        measured_a: f32,
+        lo: f32,
+        hi: f32,
+    ) -> f32 {
         let k = self.k;
-        let p = k.kp_b * setpoint_a - k.kp * measured_a;
-        let step = if k.tustin {
+        let e = setpoint_a - measured_a;
+        let p = k.proportional(setpoint_a, measured_a);
+        let step = if TUSTIN {
             k.ki_step * (e + self.prev_error_a)
         } else {
             k.ki_step * e
         };
         let candidate = self.integrator_v + step;
-        let unsat = p + candidate;
-        let (u, integ) = if k.back_calculation {
-            let u = clamp(unsat, lo, hi);
-            (u, candidate + k.tracking * (u - unsat))
+        // `e - e` is 0 for a finite error and NaN otherwise: a NaN or infinite
+        // input makes the demand NaN, which fails every comparison below.
+        #[allow(clippy::eq_op)]
+        let demand = (p + candidate) + (e - e);
+        // Three outcomes from two comparisons: a NaN fails `<=` and joins the
+        // high side, where it is sorted out.
+        #[allow(clippy::neg_cmp_op_on_partial_ord)]
+        if !(demand <= hi) {
+            if demand.is_nan() {
+                return self.refuse();
+            }
+            let (u, i) = self.saturated::<CLAMPING>(demand, candidate, step, p, hi, lo, setpoint_a, true);
+            self.commit::<TUSTIN>(e, i, demand, u)
+        } else if demand >= lo {
+            // Inside the limits the loop is linear: the integrator is exactly
+            // `u - P`, so a retune is bumpless.
+            self.commit::<TUSTIN>(e, candidate, demand, demand)
         } else {
-            let pushing_up = unsat > hi && step > 0.0;
-            let pushing_down = unsat < lo && step < 0.0;
-            let integ = if pushing_up || pushing_down {
-                self.integrator_v
-            } else {
-                candidate
-            };
-            (clamp(p + integ, lo, hi), integ)
-        };
-        let saturated = unsat > hi || unsat < lo;
-        // Unsaturated, the integrator is exactly `u - P` and left alone, so the
-        // loop is linear and a retune is bumpless. Saturated, it is held inside
-        // the range the output needs at steady state for this setpoint,
-        // `[lo, hi] + Kp (1 - b) r` (with a setpoint weight b < 1 the weighted
-        // proportional part keeps `-Kp (1 - b) r` at steady state, which the
-        // integrator must make up), so a long saturation leaves it where the
-        // steady state can use it.
-        self.integrator_v = if saturated {
-            let offset = k.kp_unweighted * setpoint_a;
-            clamp(integ, lo + offset, hi + offset)
-        } else {
-            integ
-        };
-        self.prev_error_a = e;
-        self.last_setpoint_a = setpoint_a;
-        self.last_measured_a = measured_a;
-        self.last_output_v = u;
-        self.last_min_v = lo;
-        self.last_max_v = hi;
-        self.saturation = if unsat > hi {
-            Saturation::High
-        } else if unsat < lo {
-            Saturation::Low
-        } else {
-            Saturation::None
-        };
-        u
+            let (u, i) = self.saturated::<CLAMPING>(demand, candidate, step, p, lo, hi, setpoint_a, false);
+            self.commit::<TUSTIN>(e, i, demand, u)
+        }
     }
 
-    /// Bumpless retune: the new gains take effect at the next update, and the
-    /// integrator is re-expressed so that, for the last setpoint and measurement,
-    /// the new gains give the same output as the last update did. The next output
-    /// therefore differs from the last one only by the new integral step.
+    /// Stores the step's state and returns its output.
+    #[inline(always)]
+    fn commit<const TUSTIN: bool>(&mut self, e: f32, integrator: f32, demand: f32, output: f32) -> f32 {
+        if TUSTIN {
+            self.prev_error_a = e;
+        }
+        self.integrator_v = integrator;
+        self.demand_v = demand;
+        self.output_v = output;
+        output
+    }
+
+    /// The output and integrator of a saturated step, written once for both sides:
+    /// `limit` is the one the demand went past, `other` the opposite one, `high`
+    /// says which side.
+    ///
+    /// The integrator is held on the far side of the range the output needs at
+    /// steady state for this setpoint, `[lo, hi] + Kp (1 - b) r` (with a setpoint
+    /// weight b < 1 the weighted proportional part keeps `-Kp (1 - b) r` at steady
+    /// state, which the integrator must make up): saturated high it stays at or
+    /// above `lo + Kp (1 - b) r`, where back-calculation would otherwise take it
+    /// when the proportional part alone spans more than the range. On the near
+    /// side, back-calculation pulls it toward the limit with time constant `Tt`.
+    /// Clamping holds it inside both edges, as it has no pull of its own.
+    #[allow(clippy::too_many_arguments)]
+    #[inline(always)]
+    fn saturated<const CLAMPING: bool>(
+        &self,
+        demand: f32,
+        candidate: f32,
+        step: f32,
+        p: f32,
+        limit: f32,
+        other: f32,
+        setpoint_a: f32,
+        high: bool,
+    ) -> (f32, f32) {
+        let offset = self.k.kp_unweighted * setpoint_a;
+        if CLAMPING {
+            // Skip the integral step when it pushes further into the limit.
+            let pushing = if high { step > 0.0 } else { step < 0.0 };
+            let held = if pushing { self.integrator_v } else { candidate };
+            let (lo, hi) = if high { (other, limit) } else { (limit, other) };
+            (clamp(p + held, lo, hi), clamp(held, lo + offset, hi + offset))
+        } else {
+            let tracked = candidate + self.k.tracking * (limit - demand);
+            let edge = other + offset;
+            let held = if high {
+                if tracked >= edge { tracked } else { edge }
+            } else if tracked <= edge {
+                tracked
+            } else {
+                edge
+            };
+            (limit, held)
+        }
+    }
+
+    /// The bad-input reaction: 0 V, integrator untouched.
+    #[inline(always)]
+    fn refuse(&mut self) -> f32 {
+        self.demand_v = 0.0;
+        self.output_v = 0.0;
+        0.0
+    }
+
+    /// Installs the configured gains, moving the integrator by the change of the
+    /// proportional part at this sample so that `P + I` is unchanged. False (and
+    /// nothing changed) when that change is not finite.
+    fn hand_over(&mut self, setpoint_a: f32, measured_a: f32) -> bool {
+        let new = Coefficients::from_config(&self.config);
+        let shift = self.k.proportional(setpoint_a, measured_a) - new.proportional(setpoint_a, measured_a);
+        if !shift.is_finite() {
+            return false;
+        }
+        self.integrator_v += shift;
+        self.install(new);
+        true
+    }
+
+    fn install(&mut self, k: Coefficients) {
+        self.k = k;
+        self.path &= !path::RETUNE;
+    }
+
+    /// Installs the gains of a retune still waiting, without a handover.
+    fn install_waiting(&mut self) {
+        if self.path & path::RETUNE != 0 {
+            self.install(Coefficients::from_config(&self.config));
+        }
+    }
+
+    /// Bumpless retune: the new gains take over at the next update, which first
+    /// moves the integrator by the change of the proportional part at its own
+    /// setpoint and measurement, so that `P + I` is what the old gains had; that
+    /// update's output therefore differs from what the old gains would have given
+    /// only by the change of the integral step. The handover waits for an update
+    /// with finite inputs. [`PiController::config`] shows the new gains at once.
     pub fn retune(&mut self, gains: PiGains) {
         self.config.gains = gains;
-        self.k = Coefficients::from_config(&self.config);
-        let p_new = self.k.kp_b * self.last_setpoint_a - self.k.kp * self.last_measured_a;
-        let integ = self.last_output_v - p_new;
-        // As in an update: held to the steady-state range only after a saturated one.
-        self.integrator_v = if self.saturation == Saturation::None {
-            integ
-        } else {
-            let offset = self.k.kp_unweighted * self.last_setpoint_a;
-            clamp(integ, self.last_min_v + offset, self.last_max_v + offset)
-        };
+        self.path |= path::RETUNE;
     }
 
     /// Validates `Kp` and `Ti` and retunes bumplessly; on error the old gains stay.
@@ -518,49 +665,59 @@ impl PiController {
     /// and measurement, outputs `output_v`; used when taking over from open-loop
     /// drive without a step. `output_v` must lie within the configured limits and all
     /// values be finite. If the proportional part alone is beyond the output range the
-    /// integrator is held at the range edge and the first output saturates.
+    /// integrator is held at the range edge and the first output saturates. Gains
+    /// waiting from a retune take effect here.
     pub fn track(&mut self, output_v: f32, setpoint_a: f32, measured_a: f32) -> Result<(), ConfigError> {
         let l = self.config.limits;
         let u = within("output_v", output_v, l.min_v, l.max_v)?;
         let r = finite("setpoint_a", setpoint_a)?;
         let y = finite("measured_a", measured_a)?;
-        let p = self.k.kp_b * r - self.k.kp * y;
+        self.install_waiting();
+        let p = self.k.proportional(r, y);
         let offset = self.k.kp_unweighted * r;
         self.integrator_v = clamp(u - p, l.min_v + offset, l.max_v + offset);
         self.prev_error_a = r - y;
-        self.last_setpoint_a = r;
-        self.last_measured_a = y;
-        self.last_output_v = u;
-        self.last_min_v = l.min_v;
-        self.last_max_v = l.max_v;
+        self.demand_v = u;
+        self.output_v = u;
         Ok(())
     }
 
-    /// Return to rest: integrator and remembered error and output to zero.
+    /// Return to rest: integrator and remembered error and output to zero. Gains
+    /// waiting from a retune take effect here.
     pub fn reset(&mut self) {
+        self.install_waiting();
         self.integrator_v = 0.0;
         self.prev_error_a = 0.0;
-        self.last_setpoint_a = 0.0;
-        self.last_measured_a = 0.0;
-        self.last_output_v = 0.0;
-        self.saturation = Saturation::None;
+        self.demand_v = 0.0;
+        self.output_v = 0.0;
     }
 
     /// Integrator state in volts. After an unsaturated update it is `u - P`;
-    /// after a saturated one it lies inside the output range shifted by
-    /// `Kp (1 - b) r` (the output range itself when `b = 1`).
+    /// after a saturated one it lies on the limit's side of the output range
+    /// shifted by `Kp (1 - b) r` (see [`AntiWindup`]).
     pub fn integrator_v(&self) -> f32 {
         self.integrator_v
     }
 
-    /// The output of the last update in volts.
+    /// The output of the last update in volts (0 after a refused input).
     pub fn last_output_v(&self) -> f32 {
-        self.last_output_v
+        self.output_v
     }
 
-    /// Whether the last update saturated.
+    /// The last update's unlimited output `P + I` in volts, before the limits.
+    pub fn last_demand_v(&self) -> f32 {
+        self.demand_v
+    }
+
+    /// Whether the last update saturated (its unlimited output was beyond a limit).
     pub fn saturation(&self) -> Saturation {
-        self.saturation
+        if self.demand_v > self.output_v {
+            Saturation::High
+        } else if self.demand_v < self.output_v {
+            Saturation::Low
+        } else {
+            Saturation::None
+        }
     }
 
     /// The configuration in use (including gains set by retuning).
@@ -709,6 +866,106 @@ mod tests {
             let naive_jump = 4.0 * (0.6 * 2.0 - 0.5) - 0.5 * 1.5;
             assert!(naive_jump > 1.0);
         }
+    }
+
+    #[test]
+    fn retune_hands_over_at_the_next_update_with_its_inputs() {
+        for rule in [IntegratorRule::BackwardEuler, IntegratorRule::Tustin] {
+            let mut plain = controller(rule, AntiWindup::default());
+            for _ in 0..5 {
+                plain.update(2.0, 0.5);
+            }
+            let mut retuned = plain.clone();
+            let new = PiGains::from_kp_ki(4.0, 300.0)
+                .unwrap()
+                .with_setpoint_weight(0.6)
+                .unwrap();
+            retuned.retune(new);
+            assert_eq!(
+                retuned.config().gains(),
+                new,
+                "the configuration shows the new gains at once"
+            );
+            // The next update comes with other inputs: the handover uses them, so
+            // only the change of the integral step separates the two outputs.
+            let (r, y) = (2.5, 0.75);
+            let (u_plain, u_new) = (plain.update(r, y), retuned.update(r, y));
+            let e = r - y;
+            let step = |ki: f32| match rule {
+                IntegratorRule::BackwardEuler => ki / 4096.0 * e,
+                IntegratorRule::Tustin => ki / 4096.0 / 2.0 * (e + 1.5),
+            };
+            let expected = step(300.0) - step(1024.0);
+            assert!(
+                (u_new - u_plain - expected).abs() < 1e-5,
+                "{rule:?}: {u_plain} -> {u_new}"
+            );
+        }
+    }
+
+    #[test]
+    fn retune_waits_for_an_update_with_finite_inputs() {
+        let mut pi = controller(IntegratorRule::BackwardEuler, AntiWindup::default());
+        pi.update(2.0, 0.5);
+        let held = pi.integrator_v();
+        pi.retune(PiGains::from_kp_ki(4.0, 300.0).unwrap());
+        assert_eq!(pi.update(2.0, f32::NAN), 0.0);
+        assert_eq!(pi.integrator_v(), held, "no handover on a refused input");
+        let mut reference = controller(IntegratorRule::BackwardEuler, AntiWindup::default());
+        reference.update(2.0, 0.5);
+        let u_old = reference.update(2.0, 0.5);
+        // Handover now: P + I as the old gains had it, plus the new integral step.
+        let u = pi.update(2.0, 0.5);
+        assert!(
+            (u - (u_old - 0.25 * 1.5 + 300.0 / 4096.0 * 1.5)).abs() < 1e-5,
+            "{u} {u_old}"
+        );
+    }
+
+    #[test]
+    fn reset_installs_a_waiting_retune_from_rest() {
+        let mut pi = controller(IntegratorRule::BackwardEuler, AntiWindup::default());
+        pi.update(2.0, 0.5);
+        pi.retune(PiGains::from_kp_ki(4.0, 256.0).unwrap());
+        pi.reset();
+        // From rest with the new gains: Kp e + Ki Ts e = 4 * 1 + 0.0625 * 1.
+        assert_eq!(pi.update(1.0, 0.0), 4.0625);
+    }
+
+    #[test]
+    fn saturated_high_holds_the_integrator_at_the_lower_edge_of_its_range() {
+        // b = 0.5: the range the integrator may use is [lo, hi] + Kp (1 - b) r.
+        let gains = PiGains::from_kp_ki(8.0, 1024.0)
+            .unwrap()
+            .with_setpoint_weight(0.5)
+            .unwrap();
+        let cfg = PiConfig::new(gains, 1.0 / 4096.0, OutputLimits::symmetric(10.0).unwrap()).unwrap();
+        let mut pi = PiController::new(cfg);
+        // The proportional part alone (8 * (0.5 * 4 + 6) = 64 V) spans more than
+        // the 20 V range: back-calculation alone would drive the integrator far
+        // below; it is held at -10 + 8 * 0.5 * 4 = 6 V.
+        for _ in 0..50 {
+            assert_eq!(pi.update(4.0, -6.0), 10.0);
+        }
+        assert_eq!(pi.saturation(), Saturation::High);
+        assert_eq!(pi.integrator_v(), 6.0);
+        assert!(pi.last_demand_v() > 10.0);
+        for _ in 0..50 {
+            assert_eq!(pi.update(-4.0, 6.0), -10.0);
+        }
+        assert_eq!(pi.saturation(), Saturation::Low);
+        assert_eq!(pi.integrator_v(), 10.0 - 16.0);
+    }
+
+    #[test]
+    fn overflowing_terms_count_as_a_bad_input() {
+        let mut pi = controller(IntegratorRule::BackwardEuler, AntiWindup::default());
+        pi.update(1.0, 0.0);
+        let held = pi.integrator_v();
+        // Finite inputs whose difference overflows f32.
+        assert_eq!(pi.update(3e38, -3e38), 0.0);
+        assert_eq!(pi.integrator_v(), held);
+        assert_eq!(pi.saturation(), Saturation::None);
     }
 
     #[test]
