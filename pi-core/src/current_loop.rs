@@ -13,6 +13,14 @@
 //! 5. feedforward: `R * i_ref + Ke * speed` added to the PI output;
 //! 6. volts to duty by the measured bus, limited to the duty range ([`crate::output`]).
 //!
+//! A running tick with every reading in range (current clear of the rails and
+//! within the overcurrent threshold, bus inside its window and at least the duty
+//! mapping's `min_bus_v`, speed finite), no detector counting and no trip due
+//! takes a quiet path: the same steps with the fault check reduced to what such a
+//! tick can change. Its result is the full tick's, bit for bit (a property test
+//! holds the two side by side); it exists because it is most ticks, and the
+//! cheapest (see the README's performance section).
+//!
 //! # States
 //!
 //! ```text
@@ -228,12 +236,129 @@ pub struct CurrentLoop {
     last: DriveCommand,
     last_current_a: f32,
     last_volts: f32,
+    /// No feedforward, and the PI's configured limits hold the bus's whole
+    /// window: the bus alone sets the PI's limits each tick.
+    bus_sets_limits: bool,
+    /// Running with the supervisor settled, and the quiet path possible at all:
+    /// a tick may take the quiet path.
+    quiet: bool,
+    /// What the quiet path accepts; `None` when it accepts nothing.
+    quiet_window: Option<QuietWindow>,
+    /// A copy of `quiet_window` for the quiet path, which runs only while
+    /// `quiet` is set, hence only while the window exists.
+    window: QuietWindow,
+}
+
+/// The readings a tick may take the quiet path with.
+#[derive(Clone, Copy, Debug, PartialEq)]
+struct QuietWindow {
+    /// Current readings clear of both rails whose current is within the
+    /// overcurrent threshold: `c` is one exactly when
+    /// `c.wrapping_sub(counts_low) <= counts_span`.
+    counts_low: u16,
+    counts_span: u16,
+    /// Bus readings inside the supervisor's window and at least the duty
+    /// mapping's `min_bus_v`, as bit patterns: `b` is one exactly when
+    /// `b.to_bits().wrapping_sub(bus_low_bits) <= bus_span_bits` (for
+    /// non-negative floats the patterns order as the values do; a negative, NaN
+    /// or infinite bus falls outside).
+    bus_low_bits: u32,
+    bus_span_bits: u32,
+}
+
+impl QuietWindow {
+    /// A stand-in for a window that accepts nothing (never used: `quiet` stays
+    /// clear without a window).
+    const NONE: QuietWindow = QuietWindow {
+        counts_low: 0,
+        counts_span: 0,
+        bus_low_bits: 0,
+        bus_span_bits: 0,
+    };
+
+    fn new(sense: &CurrentSense, supervisor: &SupervisorConfig, duty: &DutyMapping) -> Option<Self> {
+        let (counts_low, counts_span) = quiet_band(sense, supervisor.overcurrent().threshold_a())?;
+        let bus = supervisor.bus();
+        let low = if duty.min_bus_v() > bus.min_v() {
+            duty.min_bus_v()
+        } else {
+            bus.min_v()
+        };
+        if low > bus.max_v() {
+            return None;
+        }
+        Some(Self {
+            counts_low,
+            counts_span,
+            bus_low_bits: low.to_bits(),
+            bus_span_bits: bus.max_v().to_bits() - low.to_bits(),
+        })
+    }
+
+    #[inline(always)]
+    fn accepts(&self, counts: u16, bus_v: f32) -> bool {
+        counts.wrapping_sub(self.counts_low) <= self.counts_span
+            && bus_v.to_bits().wrapping_sub(self.bus_low_bits) <= self.bus_span_bits
+    }
+}
+
+/// The readings that are clear of both rails and whose current is within the
+/// overcurrent threshold, as `(lowest, span)`: reading `c` is one of them exactly
+/// when `c.wrapping_sub(lowest) <= span`. `None` when there are none.
+///
+/// `|to_amperes(c)|` is V-shaped in `c` (rounding keeps each side monotonic), so
+/// the readings form one interval around the offset; each edge is found by
+/// bisection with the very expressions the full check evaluates.
+fn quiet_band(sense: &CurrentSense, threshold_a: f32) -> Option<(u16, u16)> {
+    let fs = sense.full_scale_counts();
+    let ok = |c: u16| !sense.at_rail(c) && sense.to_amperes(c).abs() <= threshold_a;
+    let centre = libm::roundf(sense.offset_counts());
+    let centre = if centre < 0.0 {
+        0
+    } else if centre > fs as f32 {
+        fs
+    } else {
+        centre as u16
+    };
+    if !ok(centre) {
+        return None;
+    }
+    // Lowest: `ok` is false then true on [0, centre].
+    let (mut lo, mut hi) = (0u16, centre);
+    while lo < hi {
+        let mid = lo + (hi - lo) / 2;
+        if ok(mid) {
+            hi = mid;
+        } else {
+            lo = mid + 1;
+        }
+    }
+    let lowest = lo;
+    // Highest: `ok` is true then false on [centre, fs].
+    let (mut lo, mut hi) = (centre, fs);
+    while lo < hi {
+        let mid = hi - (hi - lo) / 2;
+        if ok(mid) {
+            lo = mid;
+        } else {
+            hi = mid - 1;
+        }
+    }
+    Some((lowest, lo - lowest))
 }
 
 impl CurrentLoop {
     /// A disabled loop with nothing latched.
     pub fn new(config: LoopConfig) -> Result<Self, ConfigError> {
         let period_s = config.pi.period_s();
+        // The most the bus window can ever make available; a bus inside the window
+        // gives at most this (rounding is monotonic).
+        let widest_v = config.duty.available_v(config.supervisor.bus().max_v());
+        let limits = config.pi.limits();
+        let bus_sets_limits = config.feedforward == Feedforward::NONE
+            && limits.min_v() <= -widest_v
+            && limits.max_v() >= widest_v;
+        let quiet_window = QuietWindow::new(&config.sense, &config.supervisor, &config.duty);
         Ok(Self {
             sense: config.sense,
             setpoint: SetpointShaper::new(config.setpoint, period_s),
@@ -244,22 +369,66 @@ impl CurrentLoop {
             last: DriveCommand::SAFE,
             last_current_a: 0.0,
             last_volts: 0.0,
+            bus_sets_limits,
+            quiet: false,
+            window: quiet_window.unwrap_or(QuietWindow::NONE),
+            quiet_window,
         })
     }
 
     /// One control tick; call it once per control period from the interrupt.
     /// Never panics, allocates or blocks.
+    ///
+    /// A running tick whose readings are all in range, with no detector counting
+    /// and no thermal step due, takes a quiet path that skips the full fault
+    /// check and gives exactly the result the full tick would; everything else
+    /// takes the full tick.
     #[inline]
     pub fn tick(&mut self, input: &TickInput) -> DriveCommand {
+        match self.quiet_tick(input) {
+            Some(command) => command,
+            None => self.full_tick(input),
+        }
+    }
+
+    /// The quiet path, or `None` (and nothing changed) when the tick needs the
+    /// full one.
+    #[inline(always)]
+    fn quiet_tick(&mut self, input: &TickInput) -> Option<DriveCommand> {
+        if !self.quiet {
+            return None;
+        }
+        let counts = input.current_counts;
+        if !self.window.accepts(counts, input.bus_v) {
+            return None;
+        }
+        if let Some(w) = input.speed_rad_s
+            && !w.is_finite()
+        {
+            return None;
+        }
+        let current_a = self.sense.to_amperes(counts);
+        let drive = self.drive();
+        if !self.supervisor.quiet_tick(current_a, counts, drive) {
+            return None;
+        }
+        self.last_current_a = current_a;
+        let command = self.run::<true>(current_a, input);
+        self.last = command;
+        Some(command)
+    }
+
+    /// The full tick: every fault cause checked, the state machine stepped.
+    #[inline(never)]
+    fn full_tick(&mut self, input: &TickInput) -> DriveCommand {
         let current_a = self.sense.to_amperes(input.current_counts);
-        let drive = if self.last.enabled { self.last.duty } else { 0.0 };
         let obs = Observation {
             current_a,
             counts: input.current_counts,
             at_rail: self.sense.at_rail(input.current_counts),
             bus_v: input.bus_v,
             speed_rad_s: input.speed_rad_s,
-            drive,
+            drive: self.drive(),
         };
         let latched = self.supervisor.check(&obs);
         self.last_current_a = current_a;
@@ -270,30 +439,63 @@ impl CurrentLoop {
             }
             DriveCommand::SAFE
         } else if self.state == LoopState::Running {
-            self.run(current_a, input)
+            self.run::<false>(current_a, input)
         } else {
             DriveCommand::SAFE
         };
         self.last = command;
+        self.refresh_quiet();
         command
     }
 
-    #[inline]
-    fn run(&mut self, current_a: f32, input: &TickInput) -> DriveCommand {
+    /// The magnitude of the duty applied during the period just measured: the
+    /// last command's duty, since the only disabled command the loop issues is
+    /// [`DriveCommand::SAFE`], whose duty is 0.
+    #[inline(always)]
+    fn drive(&self) -> f32 {
+        self.last.duty
+    }
+
+    /// Whether the next tick may take the quiet path.
+    fn refresh_quiet(&mut self) {
+        self.quiet =
+            self.state == LoopState::Running && self.supervisor.settled() && self.quiet_window.is_some();
+    }
+
+    /// The running tick, reached with nothing latched. `BUS_CHECKED` says the
+    /// caller has found the bus at least the duty mapping's `min_bus_v` (the
+    /// quiet path has); otherwise the mapping checks it.
+    #[inline(always)]
+    fn run<const BUS_CHECKED: bool>(&mut self, current_a: f32, input: &TickInput) -> DriveCommand {
         let i_ref = self.setpoint.advance();
-        let ff = &self.config.feedforward;
-        let speed_term = match input.speed_rad_s {
-            Some(w) => ff.back_emf_v_s_per_rad * w,
-            None => 0.0,
+        let duty = &self.config.duty;
+        let bus_v = input.bus_v;
+        let available = if BUS_CHECKED {
+            duty.available_on_good_bus(bus_v)
+        } else {
+            duty.available_v(bus_v)
         };
-        let v_ff = ff.resistance_ohm * i_ref + speed_term;
-        let available = self.config.duty.available_v(input.bus_v);
-        let v_pi = self
-            .pi
-            .update_within(i_ref, current_a, -available - v_ff, available - v_ff);
-        let volts = v_pi + v_ff;
+        let volts = if self.bus_sets_limits {
+            // No feedforward: the PI's output is the whole voltage.
+            self.pi.update_inside(i_ref, current_a, -available, available)
+        } else {
+            let ff = &self.config.feedforward;
+            let speed_term = match input.speed_rad_s {
+                Some(w) => ff.back_emf_v_s_per_rad * w,
+                None => 0.0,
+            };
+            let v_ff = ff.resistance_ohm * i_ref + speed_term;
+            let v_pi = self
+                .pi
+                .update_within(i_ref, current_a, -available - v_ff, available - v_ff);
+            v_pi + v_ff
+        };
         self.last_volts = volts;
-        self.config.duty.command(volts, input.bus_v)
+        if BUS_CHECKED {
+            duty.command_on_good_bus(volts, bus_v)
+        } else {
+            duty.command(volts, bus_v)
+        }
     }
 
     fn stop(&mut self) {
@@ -304,6 +506,12 @@ impl CurrentLoop {
 
     /// Carries out a command from the main loop. On error nothing changed.
     pub fn apply(&mut self, command: Command) -> Result<Acceptance, CommandError> {
+        let reply = self.carry_out(command);
+        self.refresh_quiet();
+        reply
+    }
+
+    fn carry_out(&mut self, command: Command) -> Result<Acceptance, CommandError> {
         match command {
             Command::SetCurrent(a) => {
                 if self.state == LoopState::Faulted {
@@ -354,6 +562,8 @@ impl CurrentLoop {
         check_readable(threshold, &sense)?;
         self.sense = sense;
         self.config.sense = sense;
+        self.quiet_window = QuietWindow::new(&sense, &self.config.supervisor, &self.config.duty);
+        self.window = self.quiet_window.unwrap_or(QuietWindow::NONE);
         Ok(())
     }
 
@@ -389,6 +599,8 @@ impl CurrentLoop {
 
     /// The supervisor, for setting the thermal model's heat after a reset.
     pub fn supervisor_mut(&mut self) -> &mut Supervisor {
+        // Whatever changes here, the next tick takes the full path and sees it.
+        self.quiet = false;
         &mut self.supervisor
     }
 
@@ -402,3 +614,6 @@ impl CurrentLoop {
         &self.config
     }
 }
+
+#[cfg(test)]
+mod quiet_path_tests;

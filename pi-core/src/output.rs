@@ -9,11 +9,12 @@
 //!
 //! With a bus below `min_bus_v` (or a NaN one) the mapping gives the safe command:
 //! dividing by a collapsing bus would ask for full duty from a supply that is
-//! failing. In the assembled loop the bus under-voltage fault trips first; this
-//! guard is the backstop for stand-alone use.
+//! failing. In the assembled loop, a bus between the supervisor's under-voltage
+//! level and `min_bus_v` leaves the loop running with the bridge off, so it rides
+//! through the dip and drives again when the bus recovers. NaN or infinite volts
+//! also give the safe command.
 
 use crate::error::{ConfigError, positive, within};
-use crate::pi::clamp;
 
 /// Which way the bridge drives the load.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Default)]
@@ -91,34 +92,54 @@ impl DutyMapping {
     #[inline]
     pub fn available_v(&self, bus_v: f32) -> f32 {
         if bus_v >= self.min_bus_v {
-            self.max_duty * bus_v
+            self.available_on_good_bus(bus_v)
         } else {
             0.0
         }
     }
 
     /// The command that applies `volts` from a bus of `bus_v`, enabled, with the
-    /// duty limited to `max_duty`. Safe command for a low or NaN bus or NaN volts.
+    /// duty limited to `max_duty`. Safe command for a low or NaN bus, and for NaN
+    /// or infinite volts.
     #[inline]
     pub fn command(&self, volts: f32, bus_v: f32) -> DriveCommand {
         // A NaN bus fails this comparison too.
-        let bus_ok = bus_v >= self.min_bus_v;
-        if !bus_ok || volts.is_nan() {
-            return DriveCommand::SAFE;
-        }
-        let duty = clamp(volts / bus_v, -self.max_duty, self.max_duty);
-        if duty < 0.0 {
-            DriveCommand {
-                duty: -duty,
-                direction: Direction::Reverse,
-                enabled: true,
-            }
+        if bus_v >= self.min_bus_v {
+            self.command_on_good_bus(volts, bus_v)
         } else {
-            DriveCommand {
-                duty,
-                direction: Direction::Forward,
-                enabled: true,
-            }
+            DriveCommand::SAFE
+        }
+    }
+
+    /// [`DutyMapping::available_v`] for a bus the caller knows is at least `min_bus_v`.
+    #[inline(always)]
+    pub(crate) fn available_on_good_bus(&self, bus_v: f32) -> f32 {
+        self.max_duty * bus_v
+    }
+
+    /// [`DutyMapping::command`] for a bus the caller knows is at least `min_bus_v`.
+    #[inline(always)]
+    pub(crate) fn command_on_good_bus(&self, volts: f32, bus_v: f32) -> DriveCommand {
+        let duty = volts / bus_v;
+        let magnitude = duty.abs();
+        let magnitude = if magnitude <= self.max_duty {
+            magnitude
+        } else if magnitude < f32::INFINITY {
+            self.max_duty
+        } else {
+            // NaN or infinite volts.
+            return DriveCommand::SAFE;
+        };
+        DriveCommand {
+            duty: magnitude,
+            // The sign bit: a negative zero (the loop never asks for one) is
+            // reverse at zero duty.
+            direction: if duty.is_sign_negative() {
+                Direction::Reverse
+            } else {
+                Direction::Forward
+            },
+            enabled: true,
         }
     }
 }
@@ -145,6 +166,8 @@ mod tests {
         assert_eq!(m.command(3.0, 5.9), DriveCommand::SAFE);
         assert_eq!(m.command(3.0, f32::NAN), DriveCommand::SAFE);
         assert_eq!(m.command(f32::NAN, 24.0), DriveCommand::SAFE);
+        assert_eq!(m.command(f32::INFINITY, 24.0), DriveCommand::SAFE);
+        assert_eq!(m.command(f32::NEG_INFINITY, 24.0), DriveCommand::SAFE);
         assert_eq!(m.available_v(5.0), 0.0);
         assert_eq!(m.available_v(20.0), 19.0);
     }

@@ -29,10 +29,14 @@ pub struct CurrentSense {
     amps_per_count: f32,
     full_scale_counts: u16,
     rail_margin_counts: u16,
+    /// The lowest reading clear of the rails, `rail_margin_counts + 1`.
+    lowest_clear: u16,
+    /// How far above it the highest clear reading is, `full_scale - 2 margin - 2`.
+    clear_span: u16,
 }
 
 impl CurrentSense {
-    /// Conversion for an ADC of `adc_bits` (1 to 16) with the given zero-current
+    /// Conversion for an ADC of `adc_bits` (2 to 16) with the given zero-current
     /// offset (counts, inside the ADC range) and scale (A per count, finite, not
     /// zero; negative for an inverting amplifier). The rail margin starts at 0:
     /// only readings of exactly 0 or full scale count as rail readings.
@@ -45,6 +49,8 @@ impl CurrentSense {
             amps_per_count,
             full_scale_counts,
             rail_margin_counts: 0,
+            lowest_clear: 1,
+            clear_span: full_scale_counts - 2,
         })
     }
 
@@ -118,8 +124,11 @@ impl CurrentSense {
                 },
             ));
         }
+        // Below a quarter of full scale, so none of these can overflow.
         Ok(Self {
             rail_margin_counts: margin_counts,
+            lowest_clear: margin_counts + 1,
+            clear_span: self.full_scale_counts - 2 * margin_counts - 2,
             ..self
         })
     }
@@ -133,7 +142,9 @@ impl CurrentSense {
     /// True when the reading is at or beyond a rail (open or shorted sensor, clipping).
     #[inline]
     pub fn at_rail(&self, counts: u16) -> bool {
-        counts <= self.rail_margin_counts || counts >= self.full_scale_counts - self.rail_margin_counts
+        // Clear of both rails is `margin < counts < full_scale - margin`: one
+        // unsigned comparison after moving the lowest clear reading to zero.
+        counts.wrapping_sub(self.lowest_clear) > self.clear_span
     }
 
     /// Zero-current offset in counts.
@@ -161,13 +172,14 @@ impl CurrentSense {
     }
 }
 
-/// Full-scale reading `2^bits - 1` of an ADC of 1 to 16 bits.
+/// Full-scale reading `2^bits - 1` of an ADC of 2 to 16 bits (one bit leaves no
+/// reading clear of the rails).
 fn full_scale(adc_bits: u8) -> Result<u16, ConfigError> {
-    if adc_bits == 0 || adc_bits > 16 {
+    if !(2..=16).contains(&adc_bits) {
         return Err(ConfigError::new(
             "adc_bits",
             adc_bits as f32,
-            Requirement::Within { min: 1.0, max: 16.0 },
+            Requirement::Within { min: 2.0, max: 16.0 },
         ));
     }
     Ok(((1u32 << adc_bits) - 1) as u16)
@@ -280,6 +292,24 @@ mod tests {
     use super::*;
 
     #[test]
+    fn rail_test_matches_its_definition_on_every_reading() {
+        // At a rail: within the margin of 0 or of full scale.
+        for bits in [2u8, 3, 8, 12, 16] {
+            let base = CurrentSense::new(bits, 1.0, 1e-3).unwrap();
+            let fs = base.full_scale_counts();
+            for margin in [0u16, 1, 7, (fs / 4).saturating_sub(1)] {
+                let Ok(s) = base.with_rail_margin(margin) else {
+                    continue;
+                };
+                for c in 0..=u16::MAX {
+                    let expected = c <= margin || c >= fs - margin;
+                    assert_eq!(s.at_rail(c), expected, "bits {bits} margin {margin} counts {c}");
+                }
+            }
+        }
+    }
+
+    #[test]
     fn shunt_chain_scale() {
         // 3.3 V / 4096 per count / (10 mOhm * 20) = 4.028 mA per count (Ohm's law).
         let s = CurrentSense::from_shunt(12, 3.3, 0.010, 20.0, 2048.0).unwrap();
@@ -339,6 +369,7 @@ mod tests {
     #[test]
     fn bad_configuration_is_refused() {
         assert_eq!(CurrentSense::new(0, 0.0, 1.0).unwrap_err().field, "adc_bits");
+        assert_eq!(CurrentSense::new(1, 0.0, 1.0).unwrap_err().field, "adc_bits");
         assert_eq!(
             CurrentSense::new(12, 5000.0, 1.0).unwrap_err().field,
             "offset_counts"

@@ -140,6 +140,9 @@ impl SetpointShaper {
     /// Advances one control tick and returns the setpoint for the PI, amperes.
     #[inline]
     pub fn advance(&mut self) -> f32 {
+        if self.value_a == self.target_a {
+            return self.value_a;
+        }
         let lo = self.value_a - self.step_a;
         let hi = self.value_a + self.step_a;
         self.value_a = clamp(self.target_a, lo, hi);

@@ -12,6 +12,12 @@
 //! any cause is still present. The assembled loop drives the safe state (bridge
 //! disabled, duty 0, integrator reset) whenever anything is latched.
 //!
+//! While the supervisor is settled (nothing latched, no count running, nothing
+//! present but a warm winding), a tick whose readings are all in range changes
+//! only the thermal model and the remembered reading; the assembled loop then
+//! takes a quiet path that does just that instead of the full [`Supervisor::check`]
+//! (see [`crate::current_loop`]).
+//!
 //! | cause | present while |
 //! |---|---|
 //! | [`Fault::Overcurrent`] | `|i| > threshold_a` on the latest sample |
@@ -28,6 +34,7 @@ pub mod thermal;
 use core::fmt;
 
 use crate::error::{ClearRefused, ConfigError, Requirement, finite, positive};
+use thermal::QuietHeat;
 pub use thermal::{ThermalConfig, ThermalModel, TripClass};
 
 /// One fault cause. The order is the tie-break for [`Supervisor::first`].
@@ -332,11 +339,22 @@ pub struct Supervisor {
     thermal: Option<ThermalModel>,
     over_count: u16,
     stuck_count: u16,
-    last_counts: Option<u16>,
+    /// The last reading; before the first one, a value no reading is within the
+    /// stuck band of.
+    last_counts: i32,
+    /// The stuck band in counts, -1 without stuck detection (no reading is frozen).
+    stuck_band: i32,
     present: FaultSet,
     latched: FaultSet,
     first: Option<Fault>,
+    /// Nothing latched, no detector counting, no cause present except a warm
+    /// winding: a tick whose readings are all in range then changes nothing but
+    /// the thermal sum and the last reading (the assembled loop's short path).
+    settled: bool,
 }
+
+/// A reading no 16-bit reading is within any stuck band of.
+const NO_READING: i32 = -0x1_0000;
 
 impl Supervisor {
     /// A supervisor with nothing latched and a cold thermal model, for a control
@@ -346,15 +364,18 @@ impl Supervisor {
             Some(t) => Some(ThermalModel::new(t, period_s)?),
             None => None,
         };
+        let stuck_band = config.stuck.map_or(-1, |s| s.band_counts as i32);
         Ok(Self {
             config,
             thermal,
             over_count: 0,
             stuck_count: 0,
-            last_counts: None,
+            last_counts: NO_READING,
+            stuck_band,
             present: FaultSet::EMPTY,
             latched: FaultSet::EMPTY,
             first: None,
+            settled: true,
         })
     }
 
@@ -371,26 +392,21 @@ impl Supervisor {
         };
         let over_trip = self.over_count >= self.config.overcurrent.samples;
 
-        let hot_trip = match &mut self.thermal {
-            Some(model) => model.tick(i),
-            None => false,
-        };
-        let still_hot = match &self.thermal {
-            Some(model) => model.still_hot(),
-            None => false,
+        let (hot_trip, still_hot) = match &mut self.thermal {
+            Some(model) => {
+                model.tick(i);
+                (model.tripped(), model.still_hot())
+            }
+            None => (false, false),
         };
 
         let stuck_trip = match self.config.stuck {
             Some(s) => {
-                let frozen = match self.last_counts {
-                    Some(last) => obs.counts.abs_diff(last) <= s.band_counts,
-                    None => false,
-                };
                 // Once latched, a frozen reading keeps the fault present even with
                 // the bridge off (no drive), so it cannot be cleared until the
                 // reading moves again.
                 let watching = obs.drive >= s.min_drive || self.latched.contains(Fault::SensorStuck);
-                self.stuck_count = if frozen && watching {
+                self.stuck_count = if self.frozen(obs.counts) && watching {
                     self.stuck_count.saturating_add(1)
                 } else {
                     0
@@ -399,7 +415,7 @@ impl Supervisor {
             }
             None => false,
         };
-        self.last_counts = Some(obs.counts);
+        self.last_counts = obs.counts as i32;
 
         let bus = obs.bus_v;
         let bus_ok = bus.is_finite();
@@ -428,7 +444,57 @@ impl Supervisor {
             self.first = tripped.earliest();
         }
         self.latched = self.latched.union(tripped);
+        self.settle();
         self.latched
+    }
+
+    /// Whether the supervisor is settled: nothing latched, no detector counting,
+    /// no cause present except a warm winding.
+    #[inline(always)]
+    pub(crate) fn settled(&self) -> bool {
+        self.settled
+    }
+
+    /// The short path for a caller that has already found the current, the rail
+    /// test, the bus and the speed in range on a settled supervisor: false, and
+    /// nothing changed, if the reading would count as frozen or the winding's
+    /// heat would reach its trip level; otherwise it does what
+    /// [`Supervisor::check`] would (the thermal model takes the tick, the reading
+    /// is remembered, a warm winding shows as a present overload) and returns true.
+    #[inline(always)]
+    pub(crate) fn quiet_tick(&mut self, current_a: f32, counts: u16, drive: f32) -> bool {
+        if let Some(stuck) = self.config.stuck
+            && drive >= stuck.min_drive
+            && self.frozen(counts)
+        {
+            return false;
+        }
+        if let Some(model) = &mut self.thermal {
+            match model.add_below_trip(current_a) {
+                QuietHeat::Unchanged => {}
+                QuietHeat::Stepped { still_hot } => {
+                    self.present = FaultSet::EMPTY.with_if(Fault::Overload, still_hot);
+                }
+                QuietHeat::WouldTrip => return false,
+            }
+        }
+        self.last_counts = counts as i32;
+        true
+    }
+
+    /// Whether a reading has moved by no more than the stuck band since the last
+    /// (never without stuck detection, whose band is -1).
+    #[inline(always)]
+    fn frozen(&self, counts: u16) -> bool {
+        (counts as i32 - self.last_counts).abs() <= self.stuck_band
+    }
+
+    /// Recomputes whether the next tick may take the short path.
+    fn settle(&mut self) {
+        self.settled = self.latched.is_empty()
+            && self.over_count == 0
+            && self.stuck_count == 0
+            && self.present.0 & !(Fault::Overload as u16) == 0;
     }
 
     /// Clears the latch, or refuses with the causes still present (the latch then
@@ -445,6 +511,7 @@ impl Supervisor {
         // reading is still being counted must not postpone its trip.
         self.latched = FaultSet::EMPTY;
         self.first = None;
+        self.settle();
         Ok(())
     }
 
@@ -469,7 +536,9 @@ impl Supervisor {
     }
 
     /// The thermal model for setting its heat, if enabled.
+    /// The next tick then takes the full pass, so a changed heat counts at once.
     pub fn thermal_mut(&mut self) -> Option<&mut ThermalModel> {
+        self.settled = false;
         self.thermal.as_mut()
     }
 

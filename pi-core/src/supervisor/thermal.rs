@@ -132,6 +132,20 @@ impl ThermalConfig {
     }
 }
 
+/// What [`ThermalModel::add_below_trip`] did.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub(crate) enum QuietHeat {
+    /// Added to the step's sum; the heat did not change.
+    Unchanged,
+    /// Ended a thermal step below the trip level.
+    Stepped {
+        /// Whether the winding is still above its rated steady state.
+        still_hot: bool,
+    },
+    /// Would have reached the trip level; nothing changed.
+    WouldTrip,
+}
+
 /// The running thermal model.
 #[derive(Clone, Debug)]
 pub struct ThermalModel {
@@ -140,7 +154,8 @@ pub struct ThermalModel {
     alpha: f32,
     inv_ticks: f32,
     ticks_per_step: u16,
-    ticks: u16,
+    /// Control ticks left before the next thermal step.
+    countdown: u16,
     sum_sq_a2: f32,
     heat: f32,
 }
@@ -164,7 +179,7 @@ impl ThermalModel {
             alpha: -libm::expm1f(-step_s / config.tau_s),
             inv_ticks: 1.0 / ticks_per_step as f32,
             ticks_per_step,
-            ticks: 0,
+            countdown: ticks_per_step,
             sum_sq_a2: 0.0,
             heat: 0.0,
         })
@@ -176,16 +191,64 @@ impl ThermalModel {
     #[inline]
     pub fn tick(&mut self, current_a: f32) -> bool {
         let sq = current_a * current_a;
-        if sq.is_finite() {
-            self.sum_sq_a2 += sq;
+        self.add_square(if sq.is_finite() { sq } else { 0.0 });
+        self.tripped()
+    }
+
+    /// Adds a tick at a current known to be finite and inside the overcurrent
+    /// threshold, exactly as [`ThermalModel::tick`] would, unless that would
+    /// reach the trip level: then nothing is changed.
+    #[inline(always)]
+    pub(crate) fn add_below_trip(&mut self, current_a: f32) -> QuietHeat {
+        let sum = self.sum_sq_a2 + current_a * current_a;
+        if self.countdown > 1 {
+            self.sum_sq_a2 = sum;
+            self.countdown -= 1;
+            return QuietHeat::Unchanged;
         }
-        self.ticks += 1;
-        if self.ticks >= self.ticks_per_step {
-            let q = self.sum_sq_a2 * self.inv_ticks * self.inv_rated_sq;
-            self.heat += self.alpha * (q - self.heat);
-            self.ticks = 0;
-            self.sum_sq_a2 = 0.0;
+        let heat = self.stepped_heat(sum);
+        if heat >= self.trip_level {
+            return QuietHeat::WouldTrip;
         }
+        self.heat = heat;
+        self.countdown = self.ticks_per_step;
+        self.sum_sq_a2 = 0.0;
+        QuietHeat::Stepped {
+            still_hot: self.still_hot(),
+        }
+    }
+
+    /// The heat one thermal step after the present one, given the step's sum of
+    /// squared currents.
+    #[inline(always)]
+    fn stepped_heat(&self, sum_sq_a2: f32) -> f32 {
+        let q = sum_sq_a2 * self.inv_ticks * self.inv_rated_sq;
+        self.heat + self.alpha * (q - self.heat)
+    }
+
+    #[inline(always)]
+    fn add_square(&mut self, sq_a2: f32) -> bool {
+        self.sum_sq_a2 += sq_a2;
+        self.countdown = self.countdown.wrapping_sub(1);
+        if self.countdown == 0 {
+            self.step();
+            true
+        } else {
+            false
+        }
+    }
+
+    /// Advances the heat by one thermal step from the mean square of the step.
+    #[inline(never)]
+    fn step(&mut self) {
+        self.heat = self.stepped_heat(self.sum_sq_a2);
+        self.countdown = self.ticks_per_step;
+        self.sum_sq_a2 = 0.0;
+    }
+
+    /// True while the heat is at or above the trip level.
+    #[inline]
+    pub fn tripped(&self) -> bool {
         self.heat >= self.trip_level
     }
 
