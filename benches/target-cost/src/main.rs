@@ -3,10 +3,13 @@
 //! instructions exactly (see `run.py`).
 //!
 //! Every measured call goes through `measure`, which calls `mark_start`, the
-//! probe through a function pointer, then `mark_end`; `run.py` counts the trace
-//! entries from `mark_start` to `mark_end` and subtracts the count for the
-//! empty probe, so the figure is the instructions of the probe's own call (its
-//! body and everything it calls, its return included).
+//! probe, then `mark_end`. Each probe is an `#[inline(never)]` function taking
+//! its inputs in registers as the ABI passes them (the bare PI: the controller,
+//! setpoint and measurement; the loop: the loop and the tick's inputs), with
+//! the inputs made opaque by `black_box` at the call. `run.py` counts, inside
+//! the bracket, from the probe's first instruction up to its return, so the
+//! figure is the probe's call itself (its frame, body and everything it calls)
+//! and nothing of the harness. `probe_empty` is a check on that count.
 //!
 //! Scenarios run in a fixed order; the probe announces each on the
 //! semihosting console and exits through semihosting when done.
@@ -113,61 +116,53 @@ fn report_stack(sp0: u32) {
     print(&out[..7 + d.len()]);
 }
 
-/// Everything a probe may touch.
-struct Bench {
-    pi: PiController,
-    cl: CurrentLoop,
-    setpoint_a: f32,
-    measured_a: f32,
-    counts: u16,
-    bus_v: f32,
-    out_v: f32,
-    cmd: DriveCommand,
-    gains_kp: f32,
-}
-
-#[inline(never)]
-fn measure(b: &mut Bench, f: fn(&mut Bench)) {
+/// Runs `f` between the two markers; `run.py` finds the probe's own
+/// instructions inside the bracket.
+#[inline(always)]
+fn measure<R>(f: impl FnOnce() -> R) -> R {
     mark_start();
-    f(black_box(b));
+    let r = f();
     mark_end();
+    black_box(r)
 }
 
+/// A probe that does nothing: its count is its own frame, a check on `run.py`.
 #[inline(never)]
 #[unsafe(no_mangle)]
-fn probe_empty(b: &mut Bench) {
+fn probe_empty(x: u32) -> u32 {
     // SAFETY: a no-op, so this probe is not folded into another function.
-    unsafe { asm!("nop", "nop", "nop", options(nomem, nostack)) };
-    black_box(b);
+    unsafe { asm!("nop", options(nomem, nostack)) };
+    x
 }
 
+/// The bare PI update, inputs and output in registers as the ABI passes them.
 #[inline(never)]
 #[unsafe(no_mangle)]
-fn probe_pi_update(b: &mut Bench) {
-    b.out_v = b.pi.update(b.setpoint_a, b.measured_a);
+fn probe_pi_update(pi: &mut PiController, setpoint_a: f32, measured_a: f32) -> f32 {
+    pi.update(setpoint_a, measured_a)
 }
 
+/// One tick of the assembled loop.
 #[inline(never)]
 #[unsafe(no_mangle)]
-fn probe_loop_tick(b: &mut Bench) {
-    b.cmd = b.cl.tick(&TickInput {
-        current_counts: b.counts,
-        bus_v: b.bus_v,
-        speed_rad_s: None,
-    });
+fn probe_loop_tick(cl: &mut CurrentLoop, input: &TickInput) -> DriveCommand {
+    cl.tick(input)
 }
 
+/// The on-device design routine (direct discrete placement, f32), as a retune
+/// from a bench command would run it; returns Kp or NaN.
 #[inline(never)]
 #[unsafe(no_mangle)]
-fn probe_design(b: &mut Bench) {
-    let plant = RlPlant::new(black_box(1.9f32), black_box(2.4e-3));
-    let sampling = Sampling::new(black_box(50e-6f32), true, 0.0);
-    let spec = Spec::new(black_box(2e-3f32), black_box(0.05));
-    if let (Ok(p), Ok(s), Ok(sp)) = (plant, sampling, spec) {
-        if let Ok(g) = discrete::design(&p, &s, &sp) {
-            b.gains_kp = g.kp_v_per_a;
-        }
+fn probe_design(r_ohm: f32, l_h: f32, ts_s: f32, settling_s: f32, overshoot: f32) -> f32 {
+    let plant = RlPlant::new(r_ohm, l_h);
+    let sampling = Sampling::new(ts_s, true, 0.0);
+    let spec = Spec::new(settling_s, overshoot);
+    if let (Ok(p), Ok(s), Ok(sp)) = (plant, sampling, spec)
+        && let Ok(g) = discrete::design(&p, &s, &sp)
+    {
+        return g.kp_v_per_a;
     }
+    f32::NAN
 }
 
 /// Announces a scenario; `run.py` starts a new scenario at each entry here.
@@ -177,97 +172,193 @@ fn announce(name: &[u8]) {
     print(name);
 }
 
-fn build() -> Option<Bench> {
+/// One PI update through the probe, with opaque inputs.
+fn pi_call(pi: &mut PiController, setpoint_a: f32, measured_a: f32) -> f32 {
+    let (r, y) = (black_box(setpoint_a), black_box(measured_a));
+    measure(|| probe_pi_update(black_box(pi), r, y))
+}
+
+/// One loop tick through the probe, with opaque inputs.
+fn tick_call(cl: &mut CurrentLoop, counts: u16, bus_v: f32) -> DriveCommand {
+    let input = black_box(TickInput {
+        current_counts: counts,
+        bus_v,
+        speed_rad_s: None,
+    });
+    measure(|| probe_loop_tick(black_box(cl), &input))
+}
+
+/// A scenario: announce it, paint the stack, run `body`, report the stack.
+fn scenario(name: &[u8], body: impl FnOnce()) {
+    announce(name);
+    let sp0 = paint_stack();
+    body();
+    report_stack(sp0);
+}
+
+/// The invented demo board of `host-sim` (`demo::loop_config`): 12-bit ADC,
+/// 10 mOhm shunt, gain 20 at mid-scale; 6 A for 3 samples; bus 18-30 V; I^2t
+/// class 10 at 2 A rated; setpoint +/-4 A slewed at 2000 A/s; Kp = L 2 pi 800 Hz,
+/// Ti = L / R for the 1.9 ohm, 2.4 mH winding; PI limits +/-30 V; duty <= 0.95.
+fn demo_loop() -> Option<CurrentLoop> {
     let sense = CurrentSense::from_shunt(12, black_box(3.3), 0.010, 20.0, 2048.0).ok()?;
     let supervisor = SupervisorConfig::new(
         OvercurrentLimit::new(6.0, 3).ok()?,
         BusWindow::new(18.0, 30.0).ok()?,
     )
     .with_thermal(ThermalConfig::from_trip_class(2.0, TripClass::Class10).ok()?);
-    let gains = PiGains::from_kp_ti(black_box(12.06), black_box(1.263e-3)).ok()?;
-    let pi = PiConfig::new(gains, 50e-6, OutputLimits::symmetric(22.8).ok()?).ok()?;
     let config = LoopConfig::new(
         sense,
         SetpointLimits::new(-4.0, 4.0, 2000.0).ok()?,
         supervisor,
-        pi,
+        demo_pi(AntiWindup::default(), IntegratorRule::BackwardEuler, 30.0)?,
         DutyMapping::new(0.95, 12.0).ok()?,
     )
     .ok()?;
-    Some(Bench {
-        pi: PiController::new(pi),
-        cl: CurrentLoop::new(config).ok()?,
-        setpoint_a: 1.5,
-        measured_a: 1.45,
-        counts: 2048,
-        bus_v: 24.0,
-        out_v: 0.0,
-        cmd: DriveCommand::SAFE,
-        gains_kp: 0.0,
-    })
+    CurrentLoop::new(config).ok()
+}
+
+fn demo_pi(aw: AntiWindup, rule: IntegratorRule, limit_v: f32) -> Option<PiConfig> {
+    let gains = PiGains::from_kp_ti(black_box(12.06), black_box(1.263e-3)).ok()?;
+    PiConfig::new(gains, 50e-6, OutputLimits::symmetric(limit_v).ok()?)
+        .ok()?
+        .with_rule(rule)
+        .with_anti_windup(aw)
+        .ok()
+}
+
+/// Counts for a current on the demo board (4.028 mA per count at mid-scale).
+fn counts_of(current_a: f32) -> u16 {
+    (2048.0 + current_a / 0.004_028_32 + 0.5) as u16
+}
+
+/// Runs the demo loop closed around a first-order model of the winding (1.9
+/// ohm, 2.4 mH, 50 us, the duty applied one period late), computed between the
+/// measured calls, for `ticks` ticks at a bus of `bus_v`.
+fn closed_run(cl: &mut CurrentLoop, ticks: u32, bus_v: f32, i: &mut f32, pending_v: &mut f32) {
+    let (a, gain) = (0.960_9f32, 0.020_57f32); // exp(-R Ts / L), (1 - a) / R
+    for _ in 0..ticks {
+        let cmd = tick_call(cl, counts_of(*i), bus_v);
+        *i = a * *i + gain * *pending_v;
+        *pending_v = cmd.signed_duty() * bus_v;
+    }
 }
 
 fn main() -> u32 {
-    let Some(mut b) = build() else { return 2 };
-    announce(b"scenario empty\n");
-    for _ in 0..3 {
-        measure(&mut b, probe_empty);
-    }
-    announce(b"scenario pi_linear\n");
-    let sp0 = paint_stack();
-    for k in 0..20 {
-        b.measured_a = 1.45 + 0.001 * k as f32;
-        measure(&mut b, probe_pi_update);
-    }
-    report_stack(sp0);
-    announce(b"scenario pi_saturated_high\n");
-    let sp0 = paint_stack();
-    b.pi.reset();
-    for _ in 0..20 {
-        b.setpoint_a = 4.0;
-        b.measured_a = -2.0;
-        measure(&mut b, probe_pi_update);
-    }
-    report_stack(sp0);
-    announce(b"scenario pi_saturated_low\n");
-    let sp0 = paint_stack();
-    for _ in 0..20 {
-        b.setpoint_a = -4.0;
-        b.measured_a = 2.0;
-        measure(&mut b, probe_pi_update);
-    }
-    // The assembled loop, closed against a first-order winding model (1.9 ohm,
-    // 2.4 mH, 50 us, one-sample delay) computed between the measured calls.
-    report_stack(sp0);
-    announce(b"scenario loop_closed_run\n");
-    let sp0 = paint_stack();
-    let _ = b.cl.apply(Command::Enable);
-    let _ = b.cl.apply(Command::SetCurrent(1.5));
-    let (a, gain) = (0.960_9f32, 0.020_57f32); // exp(-R Ts / L), (1 - a) / R
-    let mut i = 0.0f32;
-    let mut pending_v = 0.0f32;
-    for _ in 0..60 {
-        b.counts = (2048.0 + i / 0.004_028_32 + 0.5) as u16;
-        measure(&mut b, probe_loop_tick);
-        i = a * i + gain * pending_v;
-        pending_v = b.cmd.signed_duty() * b.bus_v;
-    }
-    report_stack(sp0);
-    announce(b"scenario loop_faulted\n");
-    let sp0 = paint_stack();
-    b.counts = 4095; // sensor at the rail: faults on the first tick
-    for _ in 0..20 {
-        measure(&mut b, probe_loop_tick);
-    }
-    report_stack(sp0);
-    announce(b"scenario design_direct_discrete\n");
-    let sp0 = paint_stack();
-    for _ in 0..3 {
-        measure(&mut b, probe_design);
-    }
-    report_stack(sp0);
+    let Some(pi_config) = demo_pi(AntiWindup::default(), IntegratorRule::BackwardEuler, 22.8) else {
+        return 2;
+    };
+    scenario(b"scenario empty\n", || {
+        for k in 0..3 {
+            black_box(measure(|| probe_empty(black_box(k))));
+        }
+    });
+    let mut pi = PiController::new(pi_config);
+    scenario(b"scenario pi_linear\n", || {
+        for k in 0..20 {
+            pi_call(&mut pi, 1.5, 1.45 + 0.001 * k as f32);
+        }
+    });
+    scenario(b"scenario pi_saturated_high\n", || {
+        pi.reset();
+        for _ in 0..20 {
+            pi_call(&mut pi, 4.0, -2.0);
+        }
+    });
+    scenario(b"scenario pi_saturated_low\n", || {
+        for _ in 0..20 {
+            pi_call(&mut pi, -4.0, 2.0);
+        }
+    });
+    scenario(b"scenario pi_bad_input\n", || {
+        for _ in 0..5 {
+            pi_call(&mut pi, 1.5, f32::NAN);
+        }
+    });
+    // The general path: the update that hands a retune over, trapezoidal
+    // integration, clamping.
+    scenario(b"scenario pi_retune_handover\n", || {
+        for k in 0..5 {
+            pi.retune(pi.config().gains());
+            pi_call(&mut pi, 1.5, 1.4 + 0.01 * k as f32);
+        }
+    });
+    let Some(tustin) = demo_pi(AntiWindup::default(), IntegratorRule::Tustin, 22.8) else {
+        return 2;
+    };
+    let mut pi = PiController::new(tustin);
+    scenario(b"scenario pi_tustin_mixed\n", || {
+        for k in 0..20 {
+            pi_call(&mut pi, if k < 10 { 1.5 } else { 4.0 }, -1.0 + 0.1 * k as f32);
+        }
+    });
+    let Some(clamping) = demo_pi(AntiWindup::Clamping, IntegratorRule::BackwardEuler, 22.8) else {
+        return 2;
+    };
+    let mut pi = PiController::new(clamping);
+    scenario(b"scenario pi_clamping_mixed\n", || {
+        for k in 0..20 {
+            pi_call(&mut pi, if k < 10 { 1.5 } else { 4.0 }, -1.0 + 0.1 * k as f32);
+        }
+    });
+
+    // The assembled loop on the demo board: enabled, a 1.5 A step, closed
+    // against the winding model for 250 ticks, so the run covers the slew, the
+    // saturated and the linear PI, and one 10 ms step of the I^2t model.
+    let Some(mut cl) = demo_loop() else { return 2 };
+    let (mut i, mut pending_v) = (0.0f32, 0.0f32);
+    scenario(b"scenario loop_closed_run\n", || {
+        let _ = cl.apply(Command::Enable);
+        let _ = cl.apply(Command::SetCurrent(1.5));
+        closed_run(&mut cl, 250, 24.0, &mut i, &mut pending_v);
+    });
+    // Running into the limit on the quiet path: a 4 A setpoint while the
+    // reading stays at 0.5 A (a winding held back by something the PI cannot
+    // overcome), the PI saturated high.
+    scenario(b"scenario loop_saturated\n", || {
+        let _ = cl.apply(Command::SetCurrent(4.0));
+        for _ in 0..40 {
+            tick_call(&mut cl, counts_of(0.5), 24.0);
+        }
+        let _ = cl.apply(Command::SetCurrent(1.5));
+        closed_run(&mut cl, 60, 24.0, &mut i, &mut pending_v);
+    });
+    // Running while a detector counts: the current above the 6 A threshold for
+    // two samples (the third would trip), then back.
+    scenario(b"scenario loop_overcurrent_counting\n", || {
+        for _ in 0..4 {
+            tick_call(&mut cl, counts_of(6.5), 24.0);
+            tick_call(&mut cl, counts_of(6.5), 24.0);
+            tick_call(&mut cl, counts_of(1.5), 24.0);
+        }
+    });
+    // Running with a warm winding (I^2t heat above rated, below the trip).
+    scenario(b"scenario loop_hot_winding\n", || {
+        if let Some(t) = cl.supervisor_mut().thermal_mut() {
+            let _ = t.set_heat(1.2);
+        }
+        closed_run(&mut cl, 20, 24.0, &mut i, &mut pending_v);
+    });
+    scenario(b"scenario loop_faulted\n", || {
+        for _ in 0..20 {
+            tick_call(&mut cl, 4095, 24.0); // sensor at the rail: faults on the first tick
+        }
+    });
+    scenario(b"scenario design_direct_discrete\n", || {
+        for _ in 0..3 {
+            let kp = measure(|| {
+                probe_design(
+                    black_box(1.9),
+                    black_box(2.4e-3),
+                    black_box(50e-6),
+                    black_box(2e-3),
+                    black_box(0.05),
+                )
+            });
+            black_box(kp);
+        }
+    });
     announce(b"done\n");
-    black_box(b.out_v + b.gains_kp);
     0
 }
 
