@@ -15,13 +15,13 @@
 //!   with no plant, so the PI keeps running into its limits.
 //!
 //! Criterion reports the time of the 1024 ticks and, through its throughput
-//! line, ticks per second; ns per tick is the time over 1024. Inputs pass
-//! through `black_box`, so nothing folds. Compare `bare_pi` and
-//! `assembled_tick` against `naive_pi` on the same stream.
+//! line, ticks per second; at the end the bench prints ns per tick and the
+//! ratio of `bare_pi` and `assembled_tick` to `naive_pi` on the same stream,
+//! from this run's estimates. Inputs pass through `black_box`, so nothing folds.
 
 use std::hint::black_box;
 
-use criterion::{BatchSize, Criterion, Throughput, criterion_group, criterion_main};
+use criterion::{BatchSize, Criterion, Throughput, criterion_group};
 use host_sim::demo;
 use pi_core::{Command, OutputLimits, PiConfig, PiController, TickInput};
 
@@ -106,6 +106,26 @@ fn sweep() -> Vec<Tick> {
         .collect()
 }
 
+/// Times `update` over every tick of `ticks`, each batch from a copy of `start`.
+/// A macro and not a function: through a closure argument the update is not
+/// inlined into the loop, which adds a call to every tick and is not what
+/// firmware does.
+macro_rules! replay {
+    ($group:expr, $name:expr, $start:expr, $ticks:expr, |$state:ident, $t:ident| $update:block) => {
+        $group.bench_function($name, |b| {
+            b.iter_batched_ref(
+                || $start.clone(),
+                |$state| {
+                    for $t in $ticks {
+                        $update
+                    }
+                },
+                BatchSize::SmallInput,
+            )
+        })
+    };
+}
+
 fn ticks(c: &mut Criterion) {
     let gains = demo::gains().unwrap();
     let mut group = c.benchmark_group("tick");
@@ -113,16 +133,8 @@ fn ticks(c: &mut Criterion) {
     for (stream, ticks) in [("demo_run", demo_run()), ("sweep", sweep())] {
         let cfg = PiConfig::new(gains, demo::PERIOD_S, OutputLimits::symmetric(22.8).unwrap()).unwrap();
         let pi = PiController::new(cfg);
-        group.bench_function(format!("bare_pi/{stream}"), |b| {
-            b.iter_batched_ref(
-                || pi.clone(),
-                |pi| {
-                    for t in &ticks {
-                        black_box(pi.update(black_box(t.setpoint_a), black_box(t.measured_a)));
-                    }
-                },
-                BatchSize::SmallInput,
-            )
+        replay!(group, format!("bare_pi/{stream}"), pi, &ticks, |pi, t| {
+            black_box(pi.update(black_box(t.setpoint_a), black_box(t.measured_a)));
         });
 
         let naive = NaivePi {
@@ -132,37 +144,56 @@ fn ticks(c: &mut Criterion) {
             lo: -22.8,
             hi: 22.8,
         };
-        group.bench_function(format!("naive_pi/{stream}"), |b| {
-            b.iter_batched_ref(
-                || naive.clone(),
-                |pi| {
-                    for t in &ticks {
-                        black_box(pi.update(black_box(t.setpoint_a), black_box(t.measured_a)));
-                    }
-                },
-                BatchSize::SmallInput,
-            )
+        replay!(group, format!("naive_pi/{stream}"), naive, &ticks, |pi, t| {
+            black_box(pi.update(black_box(t.setpoint_a), black_box(t.measured_a)));
         });
 
         let mut cl = demo::current_loop().unwrap();
         cl.apply(Command::Enable).unwrap();
-        group.bench_function(format!("assembled_tick/{stream}"), |b| {
-            b.iter_batched_ref(
-                || cl.clone(),
-                |cl| {
-                    for t in &ticks {
-                        if let Some(a) = t.request {
-                            let _ = cl.apply(Command::SetCurrent(a));
-                        }
-                        black_box(cl.tick(black_box(&t.input)));
-                    }
-                },
-                BatchSize::SmallInput,
-            )
+        replay!(group, format!("assembled_tick/{stream}"), cl, &ticks, |cl, t| {
+            if let Some(a) = t.request {
+                let _ = cl.apply(Command::SetCurrent(a));
+            }
+            black_box(cl.tick(black_box(&t.input)));
         });
     }
     group.finish();
 }
 
+/// The ratios to the naive PI from this run's estimates (criterion writes them
+/// under the workspace's `target/criterion`, or `$CARGO_TARGET_DIR/criterion`).
+fn print_ratios() {
+    let target = std::env::var_os("CARGO_TARGET_DIR")
+        .map(std::path::PathBuf::from)
+        .unwrap_or_else(|| std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("../target"));
+    let mean_ns = |name: &str| -> Option<f64> {
+        let path = target
+            .join("criterion/tick")
+            .join(name)
+            .join("new/estimates.json");
+        let v: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(path).ok()?).ok()?;
+        v["mean"]["point_estimate"].as_f64().map(|t| t / N as f64)
+    };
+    println!("\nns per tick (mean) and ratio to the naive PI on the same stream:");
+    for stream in ["demo_run", "sweep"] {
+        let Some(naive) = mean_ns(&format!("naive_pi_{stream}")) else {
+            continue;
+        };
+        for what in ["bare_pi", "assembled_tick"] {
+            if let Some(t) = mean_ns(&format!("{what}_{stream}")) {
+                println!(
+                    "  {stream:<9} {what:<15} {t:6.2} ns  {:.2}x (naive {naive:.2} ns)",
+                    t / naive
+                );
+            }
+        }
+    }
+}
+
 criterion_group!(benches, ticks);
-criterion_main!(benches);
+
+fn main() {
+    benches();
+    Criterion::default().configure_from_args().final_summary();
+    print_ratios();
+}
