@@ -380,7 +380,7 @@ impl CurrentLoop {
     /// Never panics, allocates or blocks.
     ///
     /// A running tick whose readings are all in range, with no detector counting
-    /// and no thermal step due, takes a quiet path that skips the full fault
+    /// and no thermal trip coming, takes a quiet path that skips the full fault
     /// check and gives exactly the result the full tick would; everything else
     /// takes the full tick.
     #[inline]

@@ -342,7 +342,8 @@ pub struct Supervisor {
     /// The last reading; before the first one, a value no reading is within the
     /// stuck band of.
     last_counts: i32,
-    /// The stuck band in counts, -1 without stuck detection (no reading is frozen).
+    /// The stuck band in counts, widened once here for the comparison (-1
+    /// without stuck detection, though it is then never read).
     stuck_band: i32,
     present: FaultSet,
     latched: FaultSet,
@@ -482,8 +483,8 @@ impl Supervisor {
         true
     }
 
-    /// Whether a reading has moved by no more than the stuck band since the last
-    /// (never without stuck detection, whose band is -1).
+    /// Whether a reading has moved by no more than the stuck band since the last;
+    /// callers ask only with stuck detection configured.
     #[inline(always)]
     fn frozen(&self, counts: u16) -> bool {
         (counts as i32 - self.last_counts).abs() <= self.stuck_band
