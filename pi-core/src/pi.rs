@@ -39,10 +39,11 @@
 //!
 //! # Bad input
 //!
-//! If the setpoint or the measurement is NaN or infinite, or they are so large
-//! that `r - y` or `P + I` overflows, the update returns 0 V and leaves the
-//! integrator untouched; the supervisor in the assembled loop faults on such a
-//! reading before it reaches here.
+//! If the setpoint or the measurement is NaN or infinite, or `r - y` overflows,
+//! the update returns 0 V and leaves the integrator untouched; the supervisor in
+//! the assembled loop faults on such a reading before it reaches here. (Finite
+//! inputs so large that only the proportional part overflows saturate the
+//! output instead.)
 //!
 //! # Retuning
 //!
@@ -526,8 +527,8 @@ impl PiController {
             k.ki_step * e
         };
         let candidate = self.integrator_v + step;
-        // `e - e` is 0 for a finite error and NaN otherwise: a NaN or infinite
-        // input makes the demand NaN, which fails every comparison below.
+        // `e - e` is 0 for a finite error and NaN otherwise, so a NaN or
+        // infinite input (or an overflowing error) makes the demand NaN.
         #[allow(clippy::eq_op)]
         let demand = (p + candidate) + (e - e);
         // Three outcomes from two comparisons: a NaN fails `<=` and joins the
@@ -966,6 +967,22 @@ mod tests {
         assert_eq!(pi.update(3e38, -3e38), 0.0);
         assert_eq!(pi.integrator_v(), held);
         assert_eq!(pi.saturation(), Saturation::None);
+    }
+
+    #[test]
+    fn a_proportional_part_that_overflows_saturates() {
+        let gains = PiGains::from_kp_ki(10.0, 1024.0)
+            .unwrap()
+            .with_setpoint_weight(0.0)
+            .unwrap();
+        let cfg = PiConfig::new(gains, 1.0 / 4096.0, OutputLimits::symmetric(10.0).unwrap()).unwrap();
+        let mut pi = PiController::new(cfg);
+        // r - y is finite, Kp y is not.
+        assert_eq!(pi.update(0.0, 1e38), -10.0);
+        assert_eq!(pi.saturation(), Saturation::Low);
+        assert!(pi.integrator_v().is_finite());
+        assert_eq!(pi.update(0.0, -1e38), 10.0);
+        assert!(pi.integrator_v().is_finite());
     }
 
     #[test]
