@@ -933,15 +933,19 @@ mod tests {
         assert_eq!(pi.update(1.0, 0.0), 4.0625);
     }
 
+    /// Gain `kp`, Ki 1024 V/(A s), setpoint weight `b`, Ts 2^-12 s, limits +/-10 V.
+    fn weighted(kp: f32, b: f32) -> PiController {
+        let gains = PiGains::from_kp_ki(kp, 1024.0)
+            .unwrap()
+            .with_setpoint_weight(b)
+            .unwrap();
+        PiController::new(PiConfig::new(gains, 1.0 / 4096.0, OutputLimits::symmetric(10.0).unwrap()).unwrap())
+    }
+
     #[test]
     fn saturated_high_holds_the_integrator_at_the_lower_edge_of_its_range() {
         // b = 0.5: the range the integrator may use is [lo, hi] + Kp (1 - b) r.
-        let gains = PiGains::from_kp_ki(8.0, 1024.0)
-            .unwrap()
-            .with_setpoint_weight(0.5)
-            .unwrap();
-        let cfg = PiConfig::new(gains, 1.0 / 4096.0, OutputLimits::symmetric(10.0).unwrap()).unwrap();
-        let mut pi = PiController::new(cfg);
+        let mut pi = weighted(8.0, 0.5);
         // The proportional part alone (8 * (0.5 * 4 + 6) = 64 V) spans more than
         // the 20 V range: back-calculation alone would drive the integrator far
         // below; it is held at -10 + 8 * 0.5 * 4 = 6 V.
@@ -971,12 +975,7 @@ mod tests {
 
     #[test]
     fn a_proportional_part_that_overflows_saturates() {
-        let gains = PiGains::from_kp_ki(10.0, 1024.0)
-            .unwrap()
-            .with_setpoint_weight(0.0)
-            .unwrap();
-        let cfg = PiConfig::new(gains, 1.0 / 4096.0, OutputLimits::symmetric(10.0).unwrap()).unwrap();
-        let mut pi = PiController::new(cfg);
+        let mut pi = weighted(10.0, 0.0);
         // r - y is finite, Kp y is not.
         assert_eq!(pi.update(0.0, 1e38), -10.0);
         assert_eq!(pi.saturation(), Saturation::Low);
