@@ -227,7 +227,7 @@ fn commands_reach_the_loop_through_the_lock_free_queue() {
 #[test]
 fn feedforward_adds_r_times_setpoint_and_ke_times_speed() {
     let ff = pi_core::Feedforward::new(2.0, 0.031).unwrap();
-    let mut cl = CurrentLoop::new(demo::loop_config().unwrap().with_feedforward(ff)).unwrap();
+    let mut cl = CurrentLoop::new(demo::loop_config().unwrap().with_feedforward(ff).unwrap()).unwrap();
     cl.apply(Command::Enable).unwrap();
     // Setpoint 0 A, current 0 A: the PI gives 0 V, so the command is all feedforward:
     // 0.031 V s/rad * 100 rad/s = 3.1 V, duty 3.1 / 24.
@@ -244,4 +244,85 @@ fn feedforward_adds_r_times_setpoint_and_ke_times_speed() {
     });
     let pi_v = cl.pi().last_output_v();
     assert!((cl.status().commanded_v - pi_v - 3.3).abs() < 1e-5);
+}
+
+#[test]
+fn speed_feedforward_needs_a_speed_limit() {
+    use pi_core::{BusWindow, OvercurrentLimit, SupervisorConfig};
+    let ff = pi_core::Feedforward::new(2.0, 0.031).unwrap();
+    let c = demo::loop_config().unwrap();
+    let without = pi_core::LoopConfig::new(
+        demo::sense().unwrap(),
+        pi_core::SetpointLimits::new(-4.0, 4.0, 2000.0).unwrap(),
+        SupervisorConfig::new(
+            OvercurrentLimit::new(6.0, 3).unwrap(),
+            BusWindow::new(18.0, 30.0).unwrap(),
+        ),
+        *c.pi(),
+        *c.duty(),
+    )
+    .unwrap();
+    let e = without.with_feedforward(ff).unwrap_err();
+    assert_eq!(e.field, "max_speed_rad_s");
+    assert_eq!(
+        e.to_string(),
+        "max_speed_rad_s is not set but the back-EMF feedforward is on; set it"
+    );
+    // The resistive term alone needs no speed.
+    assert!(
+        without
+            .with_feedforward(pi_core::Feedforward::new(2.0, 0.0).unwrap())
+            .is_ok()
+    );
+}
+
+#[test]
+fn a_speed_beyond_the_limit_latches_on_that_tick() {
+    // 1e5 rad/s once drove full duty with 3,070 V commanded and nothing latched;
+    // f32::MAX gave a safe output with the loop still running.
+    for speed in [1e5f32, -1e5, f32::MAX, demo::MAX_SPEED_RAD_S * 1.0001] {
+        let ff = pi_core::Feedforward::new(2.0, 0.031).unwrap();
+        let mut cl = CurrentLoop::new(demo::loop_config().unwrap().with_feedforward(ff).unwrap()).unwrap();
+        cl.apply(Command::Enable).unwrap();
+        cl.apply(Command::SetCurrent(1.0)).unwrap();
+        for _ in 0..10 {
+            cl.tick(&TickInput {
+                speed_rad_s: Some(100.0),
+                ..input(2048)
+            });
+        }
+        let c = cl.tick(&TickInput {
+            speed_rad_s: Some(speed),
+            ..input(2048)
+        });
+        assert_safe(&cl, c);
+        assert_eq!(cl.status().first_fault, Some(Fault::SpeedImplausible), "{speed}");
+    }
+    // At the limit it is still plausible.
+    let mut cl = running();
+    let c = cl.tick(&TickInput {
+        speed_rad_s: Some(-demo::MAX_SPEED_RAD_S),
+        ..input(2048)
+    });
+    assert!(c.enabled && cl.status().latched.is_empty());
+}
+
+#[test]
+fn the_feedforward_never_asks_for_more_than_the_bus_gives() {
+    // A plausible but high speed: Ke w = 0.2 V s/rad * 1400 rad/s = 280 V from a
+    // 24 V bus (0.95 x 24 = 22.8 V available). The sum is held to 22.8 V.
+    let ff = pi_core::Feedforward::new(2.0, 0.2).unwrap();
+    let mut cl = CurrentLoop::new(demo::loop_config().unwrap().with_feedforward(ff).unwrap()).unwrap();
+    cl.apply(Command::Enable).unwrap();
+    for speed in [1400.0f32, -1400.0] {
+        for _ in 0..20 {
+            let c = cl.tick(&TickInput {
+                speed_rad_s: Some(speed),
+                ..input(2048)
+            });
+            let v = cl.status().commanded_v;
+            assert!(v.abs() <= 0.95 * 24.0 + 1e-4, "{speed} rad/s: {v} V");
+            assert!(c.enabled && c.duty <= 0.95);
+        }
+    }
 }

@@ -13,11 +13,12 @@
 //! | bridge | 20 kHz PWM, duty at most 95 % |
 //! | current sense | 10 mOhm shunt, gain 20 amplifier at mid-scale, 12-bit ADC, 3.3 V reference |
 //! | control | 20 kHz (Ts = 50 us), Kp = L * 2 pi 800 Hz, Ti = L / R |
-//! | protection | 6 A for 3 samples, I^2t class 10 at 2 A rated, setpoint +/-4 A, slew 2000 A/s |
+//! | protection | 6 A for 3 samples, I^2t class 10 at 2 A rated, speed limit 1500 rad/s, setpoint +/-4 A, slew 2000 A/s |
 
 use pi_core::{
     BusWindow, ConfigError, CurrentLoop, CurrentSense, DutyMapping, LoopConfig, OutputLimits,
-    OvercurrentLimit, PiConfig, PiGains, SetpointLimits, SupervisorConfig, ThermalConfig, TripClass,
+    OvercurrentLimit, PiConfig, PiGains, SetpointLimits, SpeedLimit, SupervisorConfig, ThermalConfig,
+    TripClass,
 };
 
 use crate::bridge::{Bridge, BridgeParams};
@@ -63,6 +64,9 @@ pub const SHUNT_OHM: f32 = 0.010;
 pub const AMP_GAIN: f32 = 20.0;
 /// Zero-current reading, counts (mid-scale).
 pub const OFFSET_COUNTS: f32 = 2048.0;
+/// Largest plausible shaft speed, rad/s: about 1.5 x the no-load speed at the
+/// top of the bus window (30 V / 0.031 V s/rad = 968 rad/s), rounded.
+pub const MAX_SPEED_RAD_S: f32 = 1500.0;
 
 /// The demo gains: pole-zero cancellation, `Kp = L wc`, `Ti = L / R`.
 pub fn gains() -> Result<PiGains, ConfigError> {
@@ -78,7 +82,8 @@ pub fn sense() -> Result<CurrentSense, ConfigError> {
 /// The demo board's full loop configuration.
 pub fn loop_config() -> Result<LoopConfig, ConfigError> {
     let supervisor = SupervisorConfig::new(OvercurrentLimit::new(6.0, 3)?, BusWindow::new(18.0, 30.0)?)
-        .with_thermal(ThermalConfig::from_trip_class(RATED_A, TripClass::Class10)?);
+        .with_thermal(ThermalConfig::from_trip_class(RATED_A, TripClass::Class10)?)
+        .with_speed_limit(SpeedLimit::new(MAX_SPEED_RAD_S)?);
     let pi = PiConfig::new(gains()?, PERIOD_S, OutputLimits::symmetric(30.0)?)?;
     LoopConfig::new(
         sense()?,

@@ -17,7 +17,7 @@ use std::path::Path;
 
 use pi_core::{
     AntiWindup, BusWindow, Command, ConfigError, CurrentLoop, DutyMapping, Feedforward, IntegratorRule,
-    LoopConfig, OutputLimits, OvercurrentLimit, PiConfig, PiGains, Requirement, SetpointLimits,
+    LoopConfig, OutputLimits, OvercurrentLimit, PiConfig, PiGains, Requirement, SetpointLimits, SpeedLimit,
     StuckDetection, SupervisorConfig, ThermalConfig, TripClass,
 };
 use serde::Deserialize;
@@ -106,6 +106,7 @@ fn core(section: &str, e: ConfigError) -> ScenarioError {
         ("controller.protection", "tau_s") => "controller.protection.thermal_time_constant_s".to_string(),
         ("controller.protection", "min_drive") => "controller.protection.stuck_min_duty".to_string(),
         ("controller.protection", "window_counts") => "controller.protection.stuck_band_counts".to_string(),
+        (_, "max_speed_rad_s") => "controller.protection.max_speed_rad_s".to_string(),
         ("controller", "v_max") => "controller.output_limit_v".to_string(),
         ("controller", "period_s") => "timing.control_period_s".to_string(),
         ("sense", f) => format!(
@@ -134,6 +135,7 @@ fn core(section: &str, e: ConfigError) -> ScenarioError {
         Requirement::Below(other) => format!("less than {}", scenario_name(other)),
         Requirement::DifferentFrom(other) => format!("different from {other}"),
         Requirement::AtLeastOne => "a whole number of at least 1".to_string(),
+        Requirement::Required(reason) => format!("set, since {reason}"),
     };
     ScenarioError::Invalid(ModelError {
         field,
@@ -375,6 +377,8 @@ struct ProtectionSection {
     stuck_band_counts: Option<u16>,
     stuck_ticks: Option<u16>,
     stuck_min_duty: Option<f64>,
+    /// Speed plausibility: the largest speed magnitude that is not a fault.
+    max_speed_rad_s: Option<f64>,
 }
 
 #[derive(Debug, Default, Deserialize)]
@@ -931,6 +935,11 @@ fn controller(
             .into());
         }
     }
+    if let Some(w) = p.max_speed_rad_s {
+        supervisor = supervisor.with_speed_limit(
+            SpeedLimit::new(f32_of("controller.protection.max_speed_rad_s", w)?).map_err(perr)?,
+        );
+    }
     let sp = &c.setpoint;
     let setpoint = SetpointLimits::new(
         f32_of("controller.setpoint.min_a", sp.min_a)?,
@@ -946,19 +955,21 @@ fn controller(
     let calibration = sense.nominal_calibration().map_err(|e| core("sense", e))?;
     let mut cfg = LoopConfig::new(calibration, setpoint, supervisor, pi, duty).map_err(|e| core(psec, e))?;
     if c.feedforward_resistance_ohm != 0.0 || c.feedforward_back_emf_v_s_per_rad != 0.0 {
-        cfg = cfg.with_feedforward(
-            Feedforward::new(
-                f32_of(
-                    "controller.feedforward_resistance_ohm",
-                    c.feedforward_resistance_ohm,
-                )?,
-                f32_of(
-                    "feedforward_back_emf_v_s_per_rad",
-                    c.feedforward_back_emf_v_s_per_rad,
-                )?,
+        cfg = cfg
+            .with_feedforward(
+                Feedforward::new(
+                    f32_of(
+                        "controller.feedforward_resistance_ohm",
+                        c.feedforward_resistance_ohm,
+                    )?,
+                    f32_of(
+                        "controller.feedforward_back_emf_v_s_per_rad",
+                        c.feedforward_back_emf_v_s_per_rad,
+                    )?,
+                )
+                .map_err(|e| core("controller", e))?,
             )
-            .map_err(|e| core("controller.feedforward", e))?,
-        );
+            .map_err(|e| core(psec, e))?;
     }
     Ok(cfg)
 }

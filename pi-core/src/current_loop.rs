@@ -10,12 +10,14 @@
 //! 3. setpoint: the requested current, limited and slewed ([`crate::setpoint`]);
 //! 4. PI: amperes to volts ([`crate::pi`]), limited to what the bus can give now
 //!    minus the feedforward, so anti-windup acts on the real actuator limit;
-//! 5. feedforward: `R * i_ref + Ke * speed` added to the PI output;
+//! 5. feedforward: `R * i_ref + Ke * speed`, limited to what the bus can give,
+//!    added to the PI output;
 //! 6. volts to duty by the measured bus, limited to the duty range ([`crate::output`]).
 //!
 //! A running tick with every reading in range (current clear of the rails and
 //! within the overcurrent threshold, bus inside its window and at least the duty
-//! mapping's `min_bus_v`, speed finite), no detector counting and no trip due
+//! mapping's `min_bus_v`, speed finite and within its limit), no detector
+//! counting and no trip due
 //! takes a quiet path: the same steps with the fault check reduced to what such a
 //! tick can change. Its result is the full tick's, bit for bit (a property test
 //! holds the two side by side); it exists because it is most ticks, and the
@@ -64,10 +66,10 @@
 
 use crate::error::{CommandError, ConfigError, Requirement, non_negative};
 use crate::output::{DriveCommand, DutyMapping};
-use crate::pi::{PiConfig, PiController, PiGains};
+use crate::pi::{PiConfig, PiController, PiGains, clamp};
 use crate::sense::CurrentSense;
 use crate::setpoint::{Acceptance, SetpointLimits, SetpointShaper};
-use crate::supervisor::{Fault, FaultSet, Observation, Supervisor, SupervisorConfig};
+use crate::supervisor::{Fault, FaultSet, Observation, Protections, Supervisor, SupervisorConfig};
 
 /// Validated feedforward terms: `v_ff = R * i_ref + Ke * speed`.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -85,12 +87,25 @@ impl Feedforward {
     };
 
     /// Resistive term `R` (ohm) and back-EMF constant `Ke` (V s/rad), both >= 0;
-    /// 0 switches a term off. The speed term is used only on ticks that carry a speed.
+    /// 0 switches a term off. The speed term is used only on ticks that carry a
+    /// speed, and needs a speed limit in the supervisor (see
+    /// [`LoopConfig::with_feedforward`]). The sum is limited to the voltage the
+    /// bus can give on that tick, so the feedforward alone never asks for more.
     pub fn new(resistance_ohm: f32, back_emf_v_s_per_rad: f32) -> Result<Self, ConfigError> {
         Ok(Self {
             resistance_ohm: non_negative("resistance_ohm", resistance_ohm)?,
             back_emf_v_s_per_rad: non_negative("back_emf_v_s_per_rad", back_emf_v_s_per_rad)?,
         })
+    }
+
+    /// The resistive term `R`, ohms.
+    pub fn resistance_ohm(&self) -> f32 {
+        self.resistance_ohm
+    }
+
+    /// The back-EMF constant `Ke`, V s/rad.
+    pub fn back_emf_v_s_per_rad(&self) -> f32 {
+        self.back_emf_v_s_per_rad
     }
 }
 
@@ -137,9 +152,54 @@ impl LoopConfig {
         })
     }
 
-    /// The same configuration with feedforward.
-    pub fn with_feedforward(self, feedforward: Feedforward) -> Self {
-        Self { feedforward, ..self }
+    /// The same configuration with feedforward. A back-EMF term (`Ke > 0`) is
+    /// refused unless the supervisor has a speed limit
+    /// ([`crate::supervisor::SupervisorConfig::with_speed_limit`]): the error names
+    /// `max_speed_rad_s`.
+    pub fn with_feedforward(self, feedforward: Feedforward) -> Result<Self, ConfigError> {
+        if feedforward.back_emf_v_s_per_rad > 0.0 && self.supervisor.speed_limit().is_none() {
+            return Err(ConfigError::new(
+                "max_speed_rad_s",
+                0.0,
+                Requirement::Required("the back-EMF feedforward is on"),
+            ));
+        }
+        Ok(Self { feedforward, ..self })
+    }
+
+    /// Which protections the loop has on ([`Protections::off`] lists the rest).
+    pub fn protections(&self) -> Protections {
+        self.supervisor.protections()
+    }
+
+    /// The supervisor's configuration.
+    pub fn supervisor(&self) -> &SupervisorConfig {
+        &self.supervisor
+    }
+
+    /// The current-sense calibration.
+    pub fn sense(&self) -> &CurrentSense {
+        &self.sense
+    }
+
+    /// The setpoint limits.
+    pub fn setpoint(&self) -> &SetpointLimits {
+        &self.setpoint
+    }
+
+    /// The PI configuration.
+    pub fn pi(&self) -> &PiConfig {
+        &self.pi
+    }
+
+    /// The volts-to-duty mapping.
+    pub fn duty(&self) -> &DutyMapping {
+        &self.duty
+    }
+
+    /// The feedforward terms ([`Feedforward::NONE`] when off).
+    pub fn feedforward(&self) -> &Feedforward {
+        &self.feedforward
     }
 
     /// The control period, seconds (the PI's).
@@ -264,6 +324,9 @@ struct QuietWindow {
     /// or infinite bus falls outside).
     bus_low_bits: u32,
     bus_span_bits: u32,
+    /// The largest speed magnitude the supervisor takes as plausible (`f32::MAX`
+    /// without a limit, so that only non-finite speeds fall outside).
+    max_speed_rad_s: f32,
 }
 
 impl QuietWindow {
@@ -274,6 +337,7 @@ impl QuietWindow {
         counts_span: 0,
         bus_low_bits: 0,
         bus_span_bits: 0,
+        max_speed_rad_s: 0.0,
     };
 
     fn new(sense: &CurrentSense, supervisor: &SupervisorConfig, duty: &DutyMapping) -> Option<Self> {
@@ -292,6 +356,7 @@ impl QuietWindow {
             counts_span,
             bus_low_bits: low.to_bits(),
             bus_span_bits: bus.max_v().to_bits() - low.to_bits(),
+            max_speed_rad_s: supervisor.max_speed_rad_s(),
         })
     }
 
@@ -299,6 +364,16 @@ impl QuietWindow {
     fn accepts(&self, counts: u16, bus_v: f32) -> bool {
         counts.wrapping_sub(self.counts_low) <= self.counts_span
             && bus_v.to_bits().wrapping_sub(self.bus_low_bits) <= self.bus_span_bits
+    }
+
+    /// Whether a speed reading is finite and within the limit (a NaN fails the
+    /// comparison, an infinity is above `f32::MAX`).
+    #[inline(always)]
+    fn accepts_speed(&self, speed_rad_s: Option<f32>) -> bool {
+        match speed_rad_s {
+            Some(w) => w.abs() <= self.max_speed_rad_s,
+            None => true,
+        }
     }
 }
 
@@ -402,9 +477,7 @@ impl CurrentLoop {
         if !self.window.accepts(counts, input.bus_v) {
             return None;
         }
-        if let Some(w) = input.speed_rad_s
-            && !w.is_finite()
-        {
+        if !self.window.accepts_speed(input.speed_rad_s) {
             return None;
         }
         let current_a = self.sense.to_amperes(counts);
@@ -484,7 +557,10 @@ impl CurrentLoop {
                 Some(w) => ff.back_emf_v_s_per_rad * w,
                 None => 0.0,
             };
-            let v_ff = ff.resistance_ohm * i_ref + speed_term;
+            // Limited to what the bus gives, so the PI's range below is never
+            // empty and the sum stays within the bus. (A NaN cannot reach here:
+            // a non-finite speed latches a fault first.)
+            let v_ff = clamp(ff.resistance_ohm * i_ref + speed_term, -available, available);
             let v_pi = self
                 .pi
                 .update_within(i_ref, current_a, -available - v_ff, available - v_ff);

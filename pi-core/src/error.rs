@@ -35,6 +35,8 @@ pub enum Requirement {
     DifferentFrom(&'static str),
     /// Must be a whole number of at least 1.
     AtLeastOne,
+    /// Must be set, for the stated reason (the value is meaningless).
+    Required(&'static str),
 }
 
 /// A configuration value was refused. Nothing was changed.
@@ -149,6 +151,7 @@ impl fmt::Display for ConfigError {
                 f,
                 "{field} = {value} must be a whole number of at least 1; give 1 or more"
             ),
+            Requirement::Required(reason) => write!(f, "{field} is not set but {reason}; set it"),
         }
     }
 }

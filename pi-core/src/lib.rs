@@ -27,7 +27,8 @@
 //!
 //! * [`sense`]: ADC counts to amperes; zero-offset and two-point calibration.
 //! * [`supervisor`]: overcurrent, I^2t overload (IEC 60947-4-1 trip classes),
-//!   invalid, railed or stuck readings, bus window; latched with the first cause.
+//!   invalid, railed or stuck readings, bus window, implausible speed; latched
+//!   with the first cause. [`LoopConfig::protections`] says which are on.
 //! * [`setpoint`]: current limits and slew rate.
 //! * [`pi`]: the bare PI; usable alone when you already have amperes.
 //! * [`output`]: volts to duty by the measured bus, duty limits.
@@ -85,8 +86,8 @@ pub use pi::{AntiWindup, IntegratorRule, OutputLimits, PiConfig, PiController, P
 pub use sense::{CurrentSense, OffsetCalibration, OffsetProgress};
 pub use setpoint::{Acceptance, SetpointLimits, SetpointShaper};
 pub use supervisor::{
-    BusWindow, Fault, FaultSet, Observation, OvercurrentLimit, StuckDetection, Supervisor, SupervisorConfig,
-    ThermalConfig, ThermalModel, TripClass,
+    BusWindow, Fault, FaultSet, Observation, OvercurrentLimit, Protection, Protections, SpeedLimit,
+    StuckDetection, Supervisor, SupervisorConfig, ThermalConfig, ThermalModel, TripClass,
 };
 
 /// The README's code blocks, compiled and run as doctests.
@@ -100,7 +101,7 @@ pub mod prelude {
     pub use crate::{
         Acceptance, AntiWindup, BusWindow, Command, CurrentLoop, CurrentSense, Direction, DriveCommand,
         DutyMapping, Feedforward, IntegratorRule, LoopConfig, LoopState, OutputLimits, OvercurrentLimit,
-        PiConfig, PiController, PiGains, SetpointLimits, StuckDetection, SupervisorConfig, ThermalConfig,
-        TickInput, TripClass,
+        PiConfig, PiController, PiGains, SetpointLimits, SpeedLimit, StuckDetection, SupervisorConfig,
+        ThermalConfig, TickInput, TripClass,
     };
 }

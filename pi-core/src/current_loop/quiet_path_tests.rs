@@ -10,12 +10,12 @@ use proptest::prelude::*;
 
 use super::*;
 use crate::pi::{AntiWindup, IntegratorRule, OutputLimits};
-use crate::supervisor::{BusWindow, OvercurrentLimit, StuckDetection, ThermalConfig};
+use crate::supervisor::{BusWindow, OvercurrentLimit, SpeedLimit, StuckDetection, ThermalConfig};
 
 /// A configuration drawn from the ranges the test explores (invented values):
 /// a 12-bit sense channel, a 1 ms period so that the 10 ms thermal steps come
-/// every 10 ticks, and a thermal time constant (0.2 s) short enough for the heat
-/// to cross its rated and trip levels within a run.
+/// every 10 ticks, and the shortest thermal time constant accepted (1 s), short
+/// enough for the heat to cross its rated and trip levels within a run.
 #[derive(Clone, Debug)]
 struct Setup {
     offset_counts: f32,
@@ -29,6 +29,7 @@ struct Setup {
     rated_a: Option<f32>,
     stuck: Option<(u16, u16, f32)>,
     feedforward: Option<(f32, f32)>,
+    speed_limit: Option<f32>,
     limit_v: f32,
     kp: f32,
     ti_s: f32,
@@ -51,7 +52,11 @@ fn setup() -> impl Strategy<Value = Setup> {
             proptest::option::of(0.3f32..1.0),
             proptest::option::of((0u16..3, 2u16..6, 0.05f32..0.6)),
         ),
-        (proptest::option::of((0.0f32..3.0, 0.0f32..0.1)), 5.0f32..60.0),
+        (
+            proptest::option::of((0.0f32..3.0, 0.0f32..0.1)),
+            5.0f32..60.0,
+            proptest::option::weighted(0.7, 50.0f32..400.0),
+        ),
         (
             0.5f32..20.0,
             2e-4f32..5e-2,
@@ -75,6 +80,7 @@ fn setup() -> impl Strategy<Value = Setup> {
             rated_a: d.0.map(|k| k * s.3),
             stuck: d.1,
             feedforward: f.0,
+            speed_limit: f.2,
             limit_v: f.1,
             kp: g.0,
             ti_s: g.1,
@@ -96,10 +102,13 @@ fn build(s: &Setup) -> Option<CurrentLoop> {
         BusWindow::new(s.bus_min_v, s.bus_max_v).ok()?,
     );
     if let Some(rated) = s.rated_a {
-        supervisor = supervisor.with_thermal(ThermalConfig::from_time_constant(rated, 0.2).ok()?);
+        supervisor = supervisor.with_thermal(ThermalConfig::from_time_constant(rated, 1.0).ok()?);
     }
     if let Some((band, ticks, drive)) = s.stuck {
         supervisor = supervisor.with_stuck_detection(StuckDetection::new(band, ticks, drive).ok()?);
+    }
+    if let Some(w) = s.speed_limit {
+        supervisor = supervisor.with_speed_limit(SpeedLimit::new(w).ok()?);
     }
     let gains = PiGains::from_kp_ti(s.kp, s.ti_s)
         .ok()?
@@ -130,7 +139,7 @@ fn build(s: &Setup) -> Option<CurrentLoop> {
     )
     .ok()?;
     if let Some((r, ke)) = s.feedforward {
-        config = config.with_feedforward(Feedforward::new(r, ke).ok()?);
+        config = config.with_feedforward(Feedforward::new(r, ke).ok()?).ok()?;
     }
     CurrentLoop::new(config).ok()
 }
@@ -187,7 +196,7 @@ fn steps() -> impl Strategy<Value = Vec<Step>> {
     let speed = prop_oneof![
         300 => Just(None),
         200 => (-300.0f32..300.0).prop_map(Some),
-        1 => prop_oneof![Just(f32::NAN), Just(f32::INFINITY)].prop_map(Some),
+        1 => prop_oneof![Just(f32::NAN), Just(f32::INFINITY), Just(1e5f32), Just(-f32::MAX)].prop_map(Some),
     ];
     let step = (commands(), reading, bus, speed).prop_map(|(commands, reading, bus, speed_rad_s)| Step {
         commands,

@@ -28,6 +28,12 @@
 //! | [`Fault::BusUndervoltage`] / [`Fault::BusOvervoltage`] | the bus is outside its window |
 //! | [`Fault::BusInvalid`] | the bus reading is NaN or infinite |
 //! | [`Fault::SpeedInvalid`] | a speed was given and it is NaN or infinite |
+//! | [`Fault::SpeedImplausible`] | a speed was given and its magnitude is above the configured largest speed ([`SpeedLimit`]) |
+//!
+//! Overcurrent, the bus window and the reading checks (invalid, at a rail) are
+//! always on. The I^2t model, stuck-sensor detection and the speed limit are
+//! added to the configuration when wanted; [`SupervisorConfig::protections`]
+//! says which are on, so a start-up log or a review can show what is off.
 
 pub mod thermal;
 
@@ -60,11 +66,14 @@ pub enum Fault {
     BusInvalid = 1 << 7,
     /// Speed reading NaN or infinite.
     SpeedInvalid = 1 << 8,
+    /// Speed reading beyond the configured largest speed: a runaway drive or a
+    /// bad speed sensor.
+    SpeedImplausible = 1 << 9,
 }
 
 impl Fault {
     /// Every cause, in tie-break order.
-    pub const ALL: [Fault; 9] = [
+    pub const ALL: [Fault; 10] = [
         Fault::Overcurrent,
         Fault::Overload,
         Fault::CurrentInvalid,
@@ -74,6 +83,7 @@ impl Fault {
         Fault::BusOvervoltage,
         Fault::BusInvalid,
         Fault::SpeedInvalid,
+        Fault::SpeedImplausible,
     ];
 
     /// A short description for people.
@@ -88,6 +98,7 @@ impl Fault {
             Fault::BusOvervoltage => "bus over-voltage",
             Fault::BusInvalid => "invalid bus voltage reading",
             Fault::SpeedInvalid => "invalid speed reading",
+            Fault::SpeedImplausible => "speed beyond its largest plausible value",
         }
     }
 }
@@ -259,6 +270,147 @@ impl StuckDetection {
             min_drive,
         })
     }
+
+    /// The band a reading must stay within to count as frozen, ADC counts.
+    pub fn band_counts(&self) -> u16 {
+        self.band_counts
+    }
+
+    /// Consecutive frozen ticks that trip.
+    pub fn ticks(&self) -> u16 {
+        self.ticks
+    }
+
+    /// The least drive magnitude (duty fraction) at which frozen ticks count.
+    pub fn min_drive(&self) -> f32 {
+        self.min_drive
+    }
+}
+
+/// Validated speed plausibility limit: a speed reading whose magnitude is above
+/// `max_speed_rad_s` latches [`Fault::SpeedImplausible`] on that tick.
+///
+/// Pick it above the fastest the drive can really turn (the no-load speed at
+/// the highest bus, plus what the load can back-drive it to) and below what a
+/// broken sensor reports; the back-EMF feedforward needs it, as a wild speed
+/// would otherwise ask for a wild voltage.
+#[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct SpeedLimit {
+    max_speed_rad_s: f32,
+}
+
+impl SpeedLimit {
+    /// Largest plausible speed magnitude, rad/s (finite, > 0).
+    pub fn new(max_speed_rad_s: f32) -> Result<Self, ConfigError> {
+        Ok(Self {
+            max_speed_rad_s: positive("max_speed_rad_s", max_speed_rad_s)?,
+        })
+    }
+
+    /// Largest plausible speed magnitude, rad/s.
+    pub fn max_speed_rad_s(&self) -> f32 {
+        self.max_speed_rad_s
+    }
+}
+
+/// One protection of the supervisor, for reporting which are on.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[repr(u8)]
+pub enum Protection {
+    /// Overcurrent trip ([`Fault::Overcurrent`]); always on.
+    Overcurrent = 1 << 0,
+    /// Bus window ([`Fault::BusUndervoltage`], [`Fault::BusOvervoltage`],
+    /// [`Fault::BusInvalid`]); always on.
+    BusWindow = 1 << 1,
+    /// Current readings NaN, infinite or at a rail ([`Fault::CurrentInvalid`],
+    /// [`Fault::SensorRail`]); always on.
+    SensorReadings = 1 << 2,
+    /// I^2t winding overload ([`Fault::Overload`]); on with [`SupervisorConfig::with_thermal`].
+    Overload = 1 << 3,
+    /// Frozen current readings ([`Fault::SensorStuck`]); on with
+    /// [`SupervisorConfig::with_stuck_detection`].
+    SensorStuck = 1 << 4,
+    /// Speed readings beyond the largest plausible speed
+    /// ([`Fault::SpeedImplausible`]); on with [`SupervisorConfig::with_speed_limit`].
+    /// Non-finite speeds ([`Fault::SpeedInvalid`]) latch either way.
+    SpeedLimit = 1 << 5,
+}
+
+impl Protection {
+    /// Every protection, the always-on ones first.
+    pub const ALL: [Protection; 6] = [
+        Protection::Overcurrent,
+        Protection::BusWindow,
+        Protection::SensorReadings,
+        Protection::Overload,
+        Protection::SensorStuck,
+        Protection::SpeedLimit,
+    ];
+
+    /// A short name for people.
+    pub fn describe(self) -> &'static str {
+        match self {
+            Protection::Overcurrent => "overcurrent trip",
+            Protection::BusWindow => "bus voltage window",
+            Protection::SensorReadings => "invalid or railed current readings",
+            Protection::Overload => "I^2t winding overload",
+            Protection::SensorStuck => "stuck current sensor",
+            Protection::SpeedLimit => "speed plausibility",
+        }
+    }
+
+    /// What goes unnoticed while this protection is off.
+    pub fn risk_when_off(self) -> &'static str {
+        match self {
+            Protection::Overcurrent | Protection::BusWindow | Protection::SensorReadings => {
+                "nothing: it is always on"
+            }
+            Protection::Overload => {
+                "a current above the winding's rating but below the overcurrent threshold heats it without a trip"
+            }
+            Protection::SensorStuck => {
+                "a frozen current reading lets the true current rise unseen, up to the bus limit"
+            }
+            Protection::SpeedLimit => {
+                "a wild but finite speed reading is taken as true (and drives the back-EMF feedforward)"
+            }
+        }
+    }
+}
+
+impl fmt::Display for Protection {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str(self.describe())
+    }
+}
+
+/// Which protections a configuration has on.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Protections(u8);
+
+impl Protections {
+    /// True when `protection` is on.
+    pub fn is_on(self, protection: Protection) -> bool {
+        self.0 & protection as u8 != 0
+    }
+
+    /// The protections that are on, in [`Protection::ALL`] order.
+    pub fn on(self) -> impl Iterator<Item = Protection> {
+        Protection::ALL.into_iter().filter(move |p| self.is_on(*p))
+    }
+
+    /// The protections that are off, in [`Protection::ALL`] order.
+    pub fn off(self) -> impl Iterator<Item = Protection> {
+        Protection::ALL.into_iter().filter(move |p| !self.is_on(*p))
+    }
+
+    /// True when every protection is on.
+    pub fn all_on(self) -> bool {
+        self.off().next().is_none()
+    }
 }
 
 /// Validated supervisor configuration.
@@ -269,16 +421,20 @@ pub struct SupervisorConfig {
     bus: BusWindow,
     thermal: Option<ThermalConfig>,
     stuck: Option<StuckDetection>,
+    speed: Option<SpeedLimit>,
 }
 
 impl SupervisorConfig {
-    /// Overcurrent and bus window; no I^2t model and no stuck detection until added.
+    /// Overcurrent and bus window (and the reading checks, always on); no I^2t
+    /// model, no stuck detection and no speed limit until added:
+    /// [`SupervisorConfig::protections`] lists them as off.
     pub fn new(overcurrent: OvercurrentLimit, bus: BusWindow) -> Self {
         Self {
             overcurrent,
             bus,
             thermal: None,
             stuck: None,
+            speed: None,
         }
     }
 
@@ -298,6 +454,30 @@ impl SupervisorConfig {
         }
     }
 
+    /// Adds the speed plausibility limit.
+    pub fn with_speed_limit(self, speed: SpeedLimit) -> Self {
+        Self {
+            speed: Some(speed),
+            ..self
+        }
+    }
+
+    /// Which protections are on.
+    pub fn protections(&self) -> Protections {
+        let mut on =
+            Protection::Overcurrent as u8 | Protection::BusWindow as u8 | Protection::SensorReadings as u8;
+        if self.thermal.is_some() {
+            on |= Protection::Overload as u8;
+        }
+        if self.stuck.is_some() {
+            on |= Protection::SensorStuck as u8;
+        }
+        if self.speed.is_some() {
+            on |= Protection::SpeedLimit as u8;
+        }
+        Protections(on)
+    }
+
     /// The overcurrent limit.
     pub fn overcurrent(&self) -> OvercurrentLimit {
         self.overcurrent
@@ -311,6 +491,26 @@ impl SupervisorConfig {
     /// The thermal model parameters, if enabled.
     pub fn thermal(&self) -> Option<ThermalConfig> {
         self.thermal
+    }
+
+    /// The stuck-sensor detection, if enabled.
+    pub fn stuck_detection(&self) -> Option<StuckDetection> {
+        self.stuck
+    }
+
+    /// The speed plausibility limit, if enabled.
+    pub fn speed_limit(&self) -> Option<SpeedLimit> {
+        self.speed
+    }
+
+    /// The largest speed magnitude that is not a fault, rad/s: the limit, or
+    /// `f32::MAX` without one (then only non-finite speeds are).
+    #[inline]
+    pub(crate) fn max_speed_rad_s(&self) -> f32 {
+        match self.speed {
+            Some(s) => s.max_speed_rad_s,
+            None => f32::MAX,
+        }
     }
 }
 
@@ -420,9 +620,12 @@ impl Supervisor {
 
         let bus = obs.bus_v;
         let bus_ok = bus.is_finite();
-        let speed_bad = match obs.speed_rad_s {
-            Some(w) => !w.is_finite(),
-            None => false,
+        let (speed_bad, speed_high) = match obs.speed_rad_s {
+            Some(w) => (
+                !w.is_finite(),
+                w.is_finite() && w.abs() > self.config.max_speed_rad_s(),
+            ),
+            None => (false, false),
         };
 
         self.present = FaultSet::EMPTY
@@ -434,7 +637,8 @@ impl Supervisor {
             .with_if(Fault::BusUndervoltage, bus_ok && bus < self.config.bus.min_v)
             .with_if(Fault::BusOvervoltage, bus_ok && bus > self.config.bus.max_v)
             .with_if(Fault::BusInvalid, !bus_ok)
-            .with_if(Fault::SpeedInvalid, speed_bad);
+            .with_if(Fault::SpeedInvalid, speed_bad)
+            .with_if(Fault::SpeedImplausible, speed_high);
 
         // Everything present trips at once, except overcurrent (needs its count) and
         // overload (needs the trip level, not just "warm").
