@@ -229,3 +229,88 @@ proptest! {
         }
     }
 }
+
+#[test]
+fn the_demo_scenario_has_every_protection_that_applies_on() {
+    let s = demo::scenario().unwrap();
+    let (_, report) = host_sim::report::run(&s, &mut |_| {}).unwrap();
+    let on: Vec<&str> = report
+        .protections
+        .iter()
+        .filter(|p| p.on)
+        .map(|p| p.name)
+        .collect();
+    for wanted in [
+        "I^2t winding overload",
+        "stuck current sensor",
+        "overcurrent trip",
+    ] {
+        assert!(on.contains(&wanted), "{wanted} is off in the demo: {on:?}");
+    }
+    assert!(
+        report.protections.iter().all(|p| p.warning.is_none()),
+        "{}",
+        report.table()
+    );
+    assert!(!report.table().contains("warning:"), "{}", report.table());
+}
+
+#[test]
+fn a_protection_that_is_off_is_said_with_the_fields_that_turn_it_on() {
+    // The demo without its I^2t and stuck-sensor lines: both listed as OFF and
+    // warned about, naming the TOML fields.
+    let text: String = demo::SCENARIO_TOML
+        .lines()
+        .filter(|l| {
+            ![
+                "rated_a",
+                "trip_class",
+                "stuck_band_counts",
+                "stuck_ticks",
+                "stuck_min_duty",
+            ]
+            .iter()
+            .any(|f| l.starts_with(f))
+        })
+        .collect::<Vec<_>>()
+        .join("\n");
+    let s = Scenario::parse(&text, "t").unwrap();
+    let (_, report) = host_sim::report::run(&s, &mut |_| {}).unwrap();
+    let table = report.table();
+    let warnings: Vec<&str> = table.lines().filter(|l| l.starts_with("warning:")).collect();
+    assert_eq!(warnings.len(), 2, "{table}");
+    assert!(
+        warnings[0].contains("I^2t winding overload is off")
+            && warnings[0].contains("controller.protection.rated_a")
+    );
+    assert!(warnings[1].contains("stuck current sensor is off") && warnings[1].contains("stuck_band_counts"));
+    assert!(table.contains("OFF I^2t winding overload"), "{table}");
+    // The same in the JSON for scripts.
+    let json: serde_json::Value = serde_json::from_str(&report.json()).unwrap();
+    let off = json["protections"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|p| p["on"] == false)
+        .count();
+    assert_eq!(off, 3, "I^2t, stuck sensor, speed (no speed reading)");
+}
+
+#[test]
+fn speed_feedforward_without_a_speed_limit_names_the_field() {
+    let text = demo_with(
+        "feedforward_back_emf_v_s_per_rad = 0.0",
+        "feedforward_back_emf_v_s_per_rad = 0.031",
+    )
+    .replacen("speed_feedback = false", "speed_feedback = true", 1);
+    let e = error_of(&text);
+    assert!(e.contains("controller.protection.max_speed_rad_s"), "{e}");
+    let ok = text.replacen("# max_speed_rad_s = 1500.0", "max_speed_rad_s = 1500.0", 1);
+    let s = Scenario::parse(&ok, "t").unwrap();
+    let (_, report) = host_sim::report::run(&s, &mut |_| {}).unwrap();
+    assert!(
+        report.table().contains("on  speed plausibility"),
+        "{}",
+        report.table()
+    );
+}

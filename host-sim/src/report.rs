@@ -3,7 +3,7 @@
 
 use std::fmt::Write;
 
-use pi_core::Fault;
+use pi_core::{Fault, LoopConfig, Protection};
 use serde::Serialize;
 
 use crate::bridge::Modulation;
@@ -50,6 +50,95 @@ pub struct Report {
     pub peak_duty: f64,
     /// Highest winding temperature, C.
     pub max_winding_c: f64,
+    /// Each protection of the firmware's loop: on with its setting, or off.
+    pub protections: Vec<ProtectionLine>,
+}
+
+/// One protection of the loop as configured by the scenario.
+#[derive(Clone, Debug, Serialize)]
+pub struct ProtectionLine {
+    /// What it guards against.
+    pub name: &'static str,
+    /// Whether it is on.
+    pub on: bool,
+    /// Its setting when on, or why its being off does not matter.
+    pub setting: String,
+    /// When off and it matters: what goes unnoticed, and the fields that turn it on.
+    pub warning: Option<String>,
+}
+
+/// The protections of a loop configuration, in the scenario's terms.
+/// `speed_feedback` says whether the firmware gets a speed reading at all.
+pub fn protections(config: &LoopConfig, speed_feedback: bool) -> Vec<ProtectionLine> {
+    let on = config.protections();
+    let sup = config.supervisor();
+    Protection::ALL
+        .into_iter()
+        .map(|p| {
+            let setting = match p {
+                Protection::Overcurrent => Some(format!(
+                    "above {} A for {} samples",
+                    sup.overcurrent().threshold_a(),
+                    sup.overcurrent().samples()
+                )),
+                Protection::BusWindow => Some(format!("{} V to {} V", sup.bus().min_v(), sup.bus().max_v())),
+                Protection::SensorReadings => Some("NaN, infinite or at an ADC rail".to_string()),
+                Protection::Overload => sup.thermal().map(|t| {
+                    format!(
+                        "{} A rated, time constant {:.1} s, trips above {} x rated",
+                        t.rated_a(),
+                        t.tau_s(),
+                        t.trip_multiple()
+                    )
+                }),
+                Protection::SensorStuck => sup.stuck_detection().map(|d| {
+                    format!(
+                        "within {} counts for {} ticks at duty {} or more",
+                        d.band_counts(),
+                        d.ticks(),
+                        d.min_drive()
+                    )
+                }),
+                Protection::SpeedLimit => sup
+                    .speed_limit()
+                    .map(|w| format!("above {} rad/s", w.max_speed_rad_s())),
+            };
+            let fields = match p {
+                Protection::Overload => {
+                    "set controller.protection.rated_a with trip_class or thermal_time_constant_s"
+                }
+                Protection::SensorStuck => {
+                    "set controller.protection.stuck_band_counts, stuck_ticks and stuck_min_duty"
+                }
+                _ => "set controller.protection.max_speed_rad_s",
+            };
+            let matters = p != Protection::SpeedLimit || speed_feedback;
+            match setting {
+                Some(setting) if on.is_on(p) => ProtectionLine {
+                    name: p.describe(),
+                    on: true,
+                    setting,
+                    warning: None,
+                },
+                _ if !matters => ProtectionLine {
+                    name: p.describe(),
+                    on: false,
+                    setting: "no speed reading in this scenario".to_string(),
+                    warning: None,
+                },
+                _ => ProtectionLine {
+                    name: p.describe(),
+                    on: false,
+                    setting: String::new(),
+                    warning: Some(format!(
+                        "{} is off: {}; {fields}",
+                        p.describe(),
+                        p.risk_when_off()
+                    )),
+                },
+            }
+        })
+        .collect()
 }
 
 /// Runs a scenario with the real `pi-core` loop; `progress` gets the fraction done.
@@ -123,6 +212,7 @@ pub fn summarise(scenario: &Scenario, trace: &Trace) -> Report {
             .iter()
             .map(|p| p.winding_c)
             .fold(f64::NEG_INFINITY, f64::max),
+        protections: protections(&scenario.loop_config, scenario.chain.speed_feedback),
     }
 }
 
@@ -230,6 +320,21 @@ impl Report {
             "\npeak current {:.3} A, peak duty {:.3}, winding up to {:.2} C",
             self.peak_current_a, self.peak_duty, self.max_winding_c
         );
+        let _ = writeln!(s, "protections");
+        for p in &self.protections {
+            let _ = writeln!(
+                s,
+                "  {:<3} {:<35} {}",
+                if p.on { "on" } else { "OFF" },
+                p.name,
+                p.setting
+            );
+        }
+        for p in &self.protections {
+            if let Some(w) = &p.warning {
+                let _ = writeln!(s, "warning: {w}");
+            }
+        }
         match &self.first_fault {
             None => {
                 let _ = writeln!(s, "faults: none latched");

@@ -137,11 +137,11 @@ fn core(section: &str, e: ConfigError) -> ScenarioError {
         Requirement::AtLeastOne => "a whole number of at least 1".to_string(),
         Requirement::Required(reason) => format!("set, since {reason}"),
     };
-    ScenarioError::Invalid(ModelError {
-        field,
-        value: format!("{}", e.value),
-        needs,
-    })
+    let value = match e.needs {
+        Requirement::Required(_) => "(missing)".to_string(),
+        _ => format!("{}", e.value),
+    };
+    ScenarioError::Invalid(ModelError { field, value, needs })
 }
 
 // ---------------------------------------------------------------------------
