@@ -76,7 +76,7 @@ impl<T: Real> OpenLoop<T> {
     /// The measured-current plant `num / den`: numerator `[n1, n0]` (`n1 = 0`
     /// without a filter) and the monic denominator's coefficients.
     pub fn plant(&self) -> ([T; 2], &[T]) {
-        (self.num, &self.den[..=self.den_degree])
+        (self.num, self.den_used())
     }
 
     /// Whether the one-period delay (an open-loop pole at z = 0) is in the loop.
@@ -92,7 +92,7 @@ impl<T: Real> OpenLoop<T> {
             .times(z)
             .plus(Complex::real(self.num[1]));
         let mut d = Complex::real(T::ONE);
-        for &k in &self.den[1..=self.den_degree] {
+        for &k in self.den_used().iter().skip(1) {
             d = d.times(z).plus(Complex::real(k));
         }
         let mut l = c.times(n).over(d);
@@ -102,17 +102,30 @@ impl<T: Real> OpenLoop<T> {
         l
     }
 
+    /// The denominator's coefficients in use, `[1, d1]` or `[1, d1, d0]`.
+    fn den_used(&self) -> &[T] {
+        // `den_degree` is 1 or 2 by construction; written so that no bounds
+        // check (and no panic path) is left for firmware builds.
+        let (used, _) = self.den.split_at(self.den_degree.min(2) + 1);
+        used
+    }
+
     /// The closed loop's characteristic polynomial:
     /// `(z - 1) z^d den(z) + (k1 z - k0) num(z)`.
     pub fn characteristic(&self) -> Option<Poly<T>> {
-        // (z - 1) * den
+        // (z - 1) * den: coefficient k is den[k] - den[k - 1], with den[-1] and
+        // den[dd + 1] taken as zero.
         let mut p = [T::ZERO; MAX_DEGREE + 1];
-        let dd = self.den_degree;
-        p[0] = T::ONE;
-        for (k, pk) in p.iter_mut().enumerate().take(dd + 1).skip(1) {
-            *pk = self.den[k] - self.den[k - 1];
+        let den = self.den_used();
+        let dd = den.len() - 1;
+        let mut previous = T::ZERO;
+        for (pk, &dk) in p.iter_mut().zip(den) {
+            *pk = dk - previous;
+            previous = dk;
         }
-        p[dd + 1] = -self.den[dd];
+        if let Some(pk) = p.get_mut(dd + 1) {
+            *pk = -previous;
+        }
         let mut degree = dd + 1;
         if self.delay {
             degree += 1; // times z: one more trailing zero coefficient
@@ -123,11 +136,13 @@ impl<T: Real> OpenLoop<T> {
             self.k1 * self.num[1] - self.k0 * self.num[0],
             -self.k0 * self.num[1],
         ];
+        // Added at the powers z^2, z^1, z^0 (degree >= 2 here).
         for (j, &v) in q.iter().enumerate() {
-            let idx = degree - (2 - j);
-            p[idx] = p[idx] + v;
+            if let Some(pk) = (degree + j).checked_sub(2).and_then(|idx| p.get_mut(idx)) {
+                *pk = *pk + v;
+            }
         }
-        Poly::new(&p[..=degree])
+        Poly::new(p.get(..=degree)?)
     }
 
     /// Closed-loop poles; `len` of them are valid.
@@ -141,7 +156,7 @@ impl<T: Real> OpenLoop<T> {
     /// Largest pole magnitude (below 1: stable).
     pub fn spectral_radius(&self) -> T {
         let (p, n) = self.poles();
-        p[..n].iter().fold(T::ZERO, |m, z| m.max(z.abs()))
+        p.iter().take(n).fold(T::ZERO, |m, z| m.max(z.abs()))
     }
 
     /// Stable: every closed-loop pole strictly inside the unit circle.

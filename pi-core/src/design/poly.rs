@@ -95,13 +95,16 @@ impl<T: Real> Poly<T> {
 
     /// Coefficients, highest power first.
     pub fn coefficients(&self) -> &[T] {
-        &self.c[..=self.degree]
+        // `degree <= MAX_DEGREE` by construction; written so that no bounds
+        // check (and no panic path) is left for firmware builds.
+        let (used, _) = self.c.split_at(self.degree.min(MAX_DEGREE) + 1);
+        used
     }
 
     /// Value at a complex point (Horner).
     pub fn eval(&self, z: Complex<T>) -> Complex<T> {
-        let mut v = Complex::real(self.c[0]);
-        for &k in &self.c[1..=self.degree] {
+        let mut v = Complex::real(T::ZERO);
+        for &k in self.coefficients() {
             v = v.times(z).plus(Complex::real(k));
         }
         v
@@ -111,7 +114,7 @@ impl<T: Real> Poly<T> {
     pub fn eval_derivative(&self, z: Complex<T>) -> Complex<T> {
         let n = self.degree;
         let mut v = Complex::real(T::ZERO);
-        for (k, &c) in self.c[..n].iter().enumerate() {
+        for (k, &c) in self.coefficients().iter().take(n).enumerate() {
             v = v.times(z).plus(Complex::real(c * T::of((n - k) as f64)));
         }
         v
@@ -119,7 +122,7 @@ impl<T: Real> Poly<T> {
 
     /// All roots; the array holds `degree()` of them.
     pub fn roots(&self) -> [Complex<T>; MAX_DEGREE] {
-        let n = self.degree;
+        let n = self.degree.min(MAX_DEGREE);
         let mut z = [Complex::real(T::ZERO); MAX_DEGREE];
         if n == 0 {
             return z;
@@ -127,7 +130,7 @@ impl<T: Real> Poly<T> {
         // Cauchy bound: every root lies within 1 + max |c_k / c_0|.
         let lead = self.c[0];
         let mut bound = T::ZERO;
-        for &k in &self.c[1..=n] {
+        for &k in self.coefficients().iter().skip(1) {
             bound = bound.max((k / lead).abs());
         }
         let radius = T::ONE + bound;

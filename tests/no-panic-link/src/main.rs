@@ -1,10 +1,14 @@
-//! Link-time proof that the control path cannot panic.
+//! Link-time proof that the calls a firmware makes cannot panic.
 //!
-//! `_start` builds a loop and runs ticks and commands on inputs the compiler cannot
-//! see through (`black_box`), so every branch of the control path stays in the
-//! binary. The panic handler calls a function that exists nowhere: if any panic
-//! remains reachable after optimisation, the link fails naming
-//! `control_path_reached_a_panic`.
+//! `_start` builds a loop and runs everything a firmware calls on it, on inputs
+//! the compiler cannot see through (`black_box`), so every branch stays in the
+//! binary: start-up (every constructor, the offset calibration, `set_sense`, a
+//! hot start through the supervisor), the main loop (commands through the
+//! handoff queue, telemetry, the on-device design of new gains), the control
+//! interrupt (`tick`, both HAL adapters) and the bare PI on its own. The panic
+//! handler calls a function that exists nowhere: if any panic remains reachable
+//! after optimisation, the link fails naming `control_path_reached_a_panic`.
+//! `check.sh` links it for Cortex-M4F and for Cortex-M0.
 
 #![no_std]
 #![no_main]
@@ -12,7 +16,12 @@
 use core::hint::black_box;
 use core::panic::PanicInfo;
 
+use embedded_hal::digital::{ErrorKind as PinErrorKind, ErrorType as PinErrorType, OutputPin};
+use embedded_hal::pwm::{ErrorKind as PwmErrorKind, ErrorType as PwmErrorType, SetDutyCycle};
+use pi_core::design::{RlPlant, Sampling, Spec, analysis::OpenLoop, discrete};
+use pi_core::heapless::spsc::Queue;
 use pi_core::prelude::*;
+use pi_core::{OffsetCalibration, OffsetProgress};
 
 unsafe extern "C" {
     fn control_path_reached_a_panic() -> !;
@@ -24,18 +33,82 @@ fn panic(_: &PanicInfo) -> ! {
     unsafe { control_path_reached_a_panic() }
 }
 
+/// A hardware error the optimiser cannot rule out.
+#[derive(Debug, Clone, Copy)]
+struct Failed;
+
+impl embedded_hal::pwm::Error for Failed {
+    fn kind(&self) -> PwmErrorKind {
+        PwmErrorKind::Other
+    }
+}
+
+impl embedded_hal::digital::Error for Failed {
+    fn kind(&self) -> PinErrorKind {
+        PinErrorKind::Other
+    }
+}
+
+/// A PWM channel whose range and result are opaque.
+struct Pwm;
+
+impl PwmErrorType for Pwm {
+    type Error = Failed;
+}
+
+impl SetDutyCycle for Pwm {
+    fn max_duty_cycle(&self) -> u16 {
+        black_box(4199)
+    }
+    fn set_duty_cycle(&mut self, duty: u16) -> Result<(), Failed> {
+        if black_box(duty) == black_box(0xffff) {
+            Err(Failed)
+        } else {
+            Ok(())
+        }
+    }
+}
+
+/// A pin whose result is opaque.
+struct Pin;
+
+impl PinErrorType for Pin {
+    type Error = Failed;
+}
+
+impl OutputPin for Pin {
+    fn set_low(&mut self) -> Result<(), Failed> {
+        if black_box(false) { Err(Failed) } else { Ok(()) }
+    }
+    fn set_high(&mut self) -> Result<(), Failed> {
+        if black_box(false) { Err(Failed) } else { Ok(()) }
+    }
+}
+
 /// What firmware does at start-up, with values the optimiser cannot fold.
 fn build() -> Option<CurrentLoop> {
     let sense =
         CurrentSense::from_shunt(12, black_box(3.3), black_box(0.010), black_box(20.0), 2048.0).ok()?;
     let thermal = ThermalConfig::from_trip_class(black_box(2.0), TripClass::Class10).ok()?;
+    let thermal = if black_box(false) {
+        ThermalConfig::from_time_constant(black_box(2.0), black_box(300.0))
+            .ok()?
+            .with_trip_multiple(black_box(1.2))
+            .ok()?
+    } else {
+        thermal
+    };
     let supervisor = SupervisorConfig::new(
         OvercurrentLimit::new(black_box(6.0), black_box(3)).ok()?,
         BusWindow::new(black_box(18.0), black_box(30.0)).ok()?,
     )
     .with_thermal(thermal)
-    .with_stuck_detection(StuckDetection::new(0, 400, 0.5).ok()?);
-    let gains = PiGains::from_kp_ti(black_box(3.0), black_box(1.26e-3)).ok()?;
+    .with_stuck_detection(StuckDetection::new(0, 400, 0.5).ok()?)
+    .with_speed_limit(SpeedLimit::new(black_box(1500.0)).ok()?);
+    let gains = PiGains::from_kp_ti(black_box(3.0), black_box(1.26e-3))
+        .ok()?
+        .with_setpoint_weight(black_box(0.5))
+        .ok()?;
     let pi = PiConfig::new(gains, black_box(50e-6), OutputLimits::symmetric(30.0).ok()?)
         .ok()?
         .with_rule(if black_box(true) {
@@ -43,8 +116,12 @@ fn build() -> Option<CurrentLoop> {
         } else {
             IntegratorRule::BackwardEuler
         })
-        .with_anti_windup(AntiWindup::BackCalculation {
-            tracking_time_s: None,
+        .with_anti_windup(if black_box(true) {
+            AntiWindup::BackCalculation {
+                tracking_time_s: None,
+            }
+        } else {
+            AntiWindup::Clamping
         })
         .ok()?;
     let config = LoopConfig::new(
@@ -55,8 +132,61 @@ fn build() -> Option<CurrentLoop> {
         DutyMapping::new(0.95, 12.0).ok()?,
     )
     .ok()?
-    .with_feedforward(Feedforward::new(black_box(1.9), black_box(0.031)).ok()?);
-    CurrentLoop::new(config).ok()
+    .with_feedforward(Feedforward::new(black_box(1.9), black_box(0.031)).ok()?)
+    .ok()?;
+    black_box(config.protections().all_on());
+    let mut cl = CurrentLoop::new(config).ok()?;
+    // Offset calibration with the bridge off, then the new calibration.
+    let mut cal = OffsetCalibration::new(cl.sense(), black_box(64), black_box(40.0)).ok()?;
+    loop {
+        match cal.add(black_box(2050)) {
+            OffsetProgress::Done { offset_counts } => {
+                if let Ok(s) = cl.sense().with_offset(offset_counts) {
+                    black_box(cl.set_sense(s).is_ok());
+                }
+                break;
+            }
+            OffsetProgress::Collecting { .. } => {}
+            _ => break,
+        }
+    }
+    // A hot start after a reset: assume the winding at its rated heat.
+    if let Some(t) = cl.supervisor_mut().thermal_mut() {
+        black_box(t.set_heat(black_box(1.0)).is_ok());
+    }
+    Some(cl)
+}
+
+/// New gains designed on the device from a bench command, checked before use.
+fn design_gains() -> Option<PiGains> {
+    let plant = RlPlant::new(black_box(1.9f32), black_box(2.4e-3)).ok()?;
+    let sampling = Sampling::new(black_box(50e-6f32), black_box(true), black_box(0.0)).ok()?;
+    let spec = Spec::new(black_box(2e-3f32), black_box(0.05)).ok()?;
+    let g = discrete::design(&plant, &sampling, &spec).ok()?;
+    if !OpenLoop::new(&plant, &sampling, &g).is_stable() {
+        return None;
+    }
+    g.to_pi_gains().ok()
+}
+
+/// The bare PI on its own, as a firmware with its own supervision would use it.
+fn bare_pi() {
+    let Ok(gains) = PiGains::from_kp_ti(black_box(3.0), black_box(1.26e-3)) else {
+        return;
+    };
+    let Ok(limits) = OutputLimits::new(black_box(-24.0), black_box(24.0)) else {
+        return;
+    };
+    let Ok(config) = PiConfig::new(gains, black_box(50e-6), limits) else {
+        return;
+    };
+    let mut pi = PiController::new(config);
+    black_box(pi.update(black_box(1.0), black_box(0.2)));
+    black_box(pi.update_within(black_box(1.0), black_box(0.2), black_box(-5.0), black_box(5.0)));
+    black_box(pi.retune_kp_ti(black_box(2.0), black_box(1e-3)).is_ok());
+    black_box(pi.track(black_box(3.0), black_box(1.0), black_box(0.5)).is_ok());
+    black_box(pi.saturation());
+    pi.reset();
 }
 
 #[unsafe(no_mangle)]
@@ -66,19 +196,29 @@ pub extern "C" fn _start() -> ! {
             core::hint::spin_loop();
         }
     };
-    let gains = PiGains::from_kp_ti(black_box(2.5), black_box(1.3e-3));
+    bare_pi();
+    let mut queue: Queue<Command, 8> = Queue::new();
+    let (mut to_isr, mut from_main) = queue.split();
+    let mut sign_magnitude = SignMagnitude::new(Pwm, Pin, Pin);
+    let mut two_pwm = TwoPwm::new(Pwm, Pwm, NoPin);
+    let designed = design_gains();
     loop {
+        // Main loop: a command through the handoff queue.
         let command = match black_box(0u8) {
             0 => Command::Enable,
             1 => Command::Disable,
             2 => Command::SetCurrent(black_box(1.0)),
             3 => Command::ClearFaults,
-            _ => match gains {
-                Ok(g) => Command::Retune(g),
-                Err(_) => Command::Disable,
+            _ => match designed {
+                Some(g) => Command::Retune(g),
+                None => Command::Disable,
             },
         };
-        black_box(cl.apply(command).is_ok());
+        black_box(to_isr.enqueue(command).is_ok());
+        // Control interrupt: drain the queue, tick, write the pins.
+        while let Some(c) = from_main.dequeue() {
+            black_box(cl.apply(c).is_ok());
+        }
         let input = TickInput {
             current_counts: black_box(2100),
             bus_v: black_box(24.0),
@@ -89,7 +229,19 @@ pub extern "C" fn _start() -> ! {
             },
         };
         let out = cl.tick(&input);
-        black_box(out);
+        let written = if black_box(true) {
+            sign_magnitude.apply(&out).is_ok()
+        } else {
+            two_pwm.apply(&out).is_ok()
+        };
+        if !written {
+            black_box(cl.apply(Command::Disable).is_ok());
+        }
+        // Telemetry.
         black_box(cl.status());
+        black_box(cl.state());
+        black_box(cl.supervisor().present());
+        black_box(cl.supervisor().first());
+        black_box(cl.pi().integrator_v());
     }
 }
