@@ -1063,4 +1063,71 @@ mod tests {
         assert!((y - 1.0).abs() < 1e-4, "settled at {y} A");
         assert!((pi.integrator_v() - 6.6).abs() < 1e-3, "{}", pi.integrator_v());
     }
+
+    #[test]
+    fn narrower_limits_never_widen_the_configured_ones() {
+        // Configured +/-100 V: limits asked for beyond them are cut back to them.
+        let mut pi = controller(IntegratorRule::BackwardEuler, AntiWindup::default());
+        assert_eq!(pi.update_within(1e6, 0.0, -200.0, 200.0), 100.0);
+        assert_eq!(pi.update_within(-1e6, 0.0, -200.0, 200.0), -100.0);
+        // Inside them they hold.
+        assert_eq!(pi.update_within(1e6, 0.0, -3.0, 7.0), 7.0);
+        assert_eq!(pi.update_within(-1e6, 0.0, -3.0, 7.0), -3.0);
+    }
+
+    #[test]
+    fn limits_that_do_not_overlap_collapse_onto_the_upper_one_inside_the_range() {
+        for aw in [AntiWindup::default(), AntiWindup::Clamping] {
+            // Inverted (5 > 3): both onto 3 V, whatever the error.
+            let mut pi = controller(IntegratorRule::BackwardEuler, aw);
+            assert_eq!(pi.update_within(1e6, 0.0, 5.0, 3.0), 3.0);
+            assert_eq!(pi.update_within(-1e6, 0.0, 5.0, 3.0), 3.0);
+            // Entirely below the configured -100 V: the upper one, -200 V, is
+            // outside the range, so both go to the range's edge, -100 V.
+            assert_eq!(pi.update_within(1e6, 0.0, -300.0, -200.0), -100.0);
+            assert_eq!(pi.update_within(-1e6, 0.0, -300.0, -200.0), -100.0);
+            // Entirely above +100 V: 100 V.
+            assert_eq!(pi.update_within(-1e6, 0.0, 200.0, 300.0), 100.0);
+        }
+    }
+
+    #[test]
+    fn clamping_gives_p_plus_the_held_integrator_when_that_is_inside_the_limits() {
+        // Kp 0.5, Ki Ts 0.25, limits +/-100. The integrator first reaches 90 V;
+        // then an error of 30 A: P = 15 V, candidate integrator 97.5 V, demand
+        // 112.5 V over the limit and pushing, so the integrator stays at 90 V
+        // and the output is P + 90 = 105 V, clamped to 100 V.
+        let mut pi = controller(IntegratorRule::BackwardEuler, AntiWindup::Clamping);
+        pi.track(90.0, 0.0, 0.0).unwrap();
+        assert_eq!(pi.integrator_v(), 90.0);
+        assert_eq!(pi.update(30.0, 0.0), 100.0);
+        assert_eq!(pi.integrator_v(), 90.0);
+        assert_eq!(pi.saturation(), Saturation::High);
+        // An error of 16 A: P = 8 V, demand 8 + 94 = 102 V over the limit, held
+        // integrator 90 V gives 98 V: inside the limits, so that is the output.
+        let u = pi.update(16.0, 0.0);
+        assert_eq!(pi.integrator_v(), 90.0);
+        assert_eq!(u, 98.0);
+        // The same below: -90 V held, error -16 A gives -98 V.
+        pi.track(-90.0, 0.0, 0.0).unwrap();
+        assert_eq!(pi.update(-16.0, 0.0), -98.0);
+        assert_eq!(pi.integrator_v(), -90.0);
+    }
+
+    #[test]
+    fn track_with_a_setpoint_weight_uses_the_shifted_integrator_range() {
+        // Kp 8, b 0.5, limits +/-10: the integrator may hold [-10, 10] + Kp (1 - b) r.
+        // At r = 4 A, y = 3 A: P = 8 (2 - 3) = -8 V; an output of 5 V needs an
+        // integrator of 13 V, inside [6, 26] though outside [-10, 10].
+        let mut pi = weighted(8.0, 0.5);
+        pi.track(5.0, 4.0, 3.0).unwrap();
+        assert_eq!(pi.integrator_v(), 13.0);
+        // The next update at the same point adds only Ki Ts e = 0.25 V.
+        assert_eq!(pi.update(4.0, 3.0), 5.25);
+        // Beyond that range it is held at the edge: an output of -9 V at r = 4,
+        // y = -6 (P = 64 V) would need -73 V; held at 6 V, so the output saturates.
+        pi.track(-9.0, 4.0, -6.0).unwrap();
+        assert_eq!(pi.integrator_v(), 6.0);
+        assert_eq!(pi.update(4.0, -6.0), 10.0);
+    }
 }

@@ -958,4 +958,176 @@ mod tests {
             "trips on the 6th frozen comparison"
         );
     }
+
+    fn thermal_supervisor(class: TripClass) -> Supervisor {
+        let cfg = SupervisorConfig::new(
+            OvercurrentLimit::new(20.0, 3).unwrap(),
+            BusWindow::new(10.0, 30.0).unwrap(),
+        )
+        .with_thermal(ThermalConfig::from_trip_class(2.0, class).unwrap());
+        Supervisor::new(cfg, 1e-3).unwrap()
+    }
+
+    #[test]
+    fn an_overload_latches_as_overload_and_comes_first() {
+        let mut s = thermal_supervisor(TripClass::Class10A);
+        assert!(s.config().protections().is_on(Protection::Overload));
+        // 7.2 x rated from cold trips class 10A in the middle of its band, 6 s.
+        let mut ticks = 0u32;
+        while s.check(&obs(14.4)).is_empty() {
+            ticks += 1;
+            assert!(ticks < 10_000, "no trip in 10 s");
+        }
+        assert!((5_900..6_100).contains(&ticks), "{ticks}");
+        assert_eq!(s.latched(), FaultSet::EMPTY.with(Fault::Overload));
+        assert_eq!(s.first(), Some(Fault::Overload));
+        assert_ne!(Fault::Overload as u16, 0);
+    }
+
+    #[test]
+    fn a_clear_after_an_overload_waits_until_the_winding_has_cooled() {
+        // Class 10A: tau = 232.3 s. From the heat at the trip, cooling to the
+        // rated steady state (h = 1) takes tau ln(h_trip).
+        let mut s = thermal_supervisor(TripClass::Class10A);
+        while s.check(&obs(14.4)).is_empty() {}
+        let h_trip = s.thermal().unwrap().heat() as f64;
+        let tau = s.config().thermal().unwrap().tau_s() as f64;
+        let cooling_ticks = (tau * h_trip.ln() * 1e3) as u32;
+        assert!(cooling_ticks > 60_000, "{cooling_ticks}");
+        for _ in 0..cooling_ticks * 95 / 100 {
+            s.check(&obs(0.0));
+        }
+        let refused = s.clear().unwrap_err();
+        assert_eq!(refused.still_present, FaultSet::EMPTY.with(Fault::Overload));
+        for _ in 0..cooling_ticks / 10 {
+            s.check(&obs(0.0));
+        }
+        s.clear().unwrap();
+    }
+
+    #[test]
+    fn with_thermal_and_the_hot_start_reach_the_model() {
+        let t = ThermalConfig::from_trip_class(2.0, TripClass::Class10).unwrap();
+        let base = SupervisorConfig::new(
+            OvercurrentLimit::new(20.0, 3).unwrap(),
+            BusWindow::new(10.0, 30.0).unwrap(),
+        );
+        assert_eq!(base.thermal(), None);
+        assert!(!base.protections().is_on(Protection::Overload));
+        assert_eq!(base.with_thermal(t).thermal(), Some(t));
+        // A hot start set through `thermal_mut` counts at the next check.
+        let mut s = thermal_supervisor(TripClass::Class10);
+        s.thermal_mut()
+            .expect("the model is there")
+            .set_heat(1.3)
+            .unwrap();
+        assert_eq!(s.thermal().unwrap().heat(), 1.3);
+        assert!(s.check(&obs(0.0)).is_empty());
+        assert!(s.present().contains(Fault::Overload), "warm winding present");
+        assert!(s.clear().is_err());
+    }
+
+    #[test]
+    fn the_bus_window_edges_are_good_and_their_neighbours_are_not() {
+        let up = |v: f32| f32::from_bits(v.to_bits() + 1);
+        let down = |v: f32| f32::from_bits(v.to_bits() - 1);
+        for (bus_v, fault) in [
+            (10.0, None),
+            (30.0, None),
+            (down(10.0), Some(Fault::BusUndervoltage)),
+            (up(30.0), Some(Fault::BusOvervoltage)),
+        ] {
+            let mut s = supervisor(1);
+            let latched = s.check(&Observation { bus_v, ..obs(0.0) });
+            match fault {
+                None => assert!(latched.is_empty(), "{bus_v}"),
+                Some(f) => assert_eq!(latched, FaultSet::EMPTY.with(f), "{bus_v}"),
+            }
+        }
+    }
+
+    #[test]
+    fn the_first_reading_is_never_taken_as_frozen() {
+        // No reading before the first: even a reading at the top of a 16-bit
+        // ADC, with a band of 1 and a single tick to trip, must not count.
+        let cfg = SupervisorConfig::new(
+            OvercurrentLimit::new(5.0, 1).unwrap(),
+            BusWindow::new(10.0, 30.0).unwrap(),
+        )
+        .with_stuck_detection(StuckDetection::new(1, 1, 0.5).unwrap());
+        for counts in [0u16, 1, 2048, 65_534, 65_535] {
+            let mut s = Supervisor::new(cfg, 1e-4).unwrap();
+            let o = Observation {
+                counts,
+                drive: 0.9,
+                ..obs(0.0)
+            };
+            assert!(s.check(&o).is_empty(), "first reading {counts}");
+            assert!(
+                s.check(&o).contains(Fault::SensorStuck),
+                "second reading {counts}"
+            );
+        }
+    }
+
+    #[test]
+    fn speed_beyond_the_limit_trips_and_at_the_limit_does_not() {
+        let cfg = SupervisorConfig::new(
+            OvercurrentLimit::new(5.0, 1).unwrap(),
+            BusWindow::new(10.0, 30.0).unwrap(),
+        )
+        .with_speed_limit(SpeedLimit::new(500.0).unwrap());
+        assert!(cfg.protections().is_on(Protection::SpeedLimit));
+        assert!(!cfg.protections().all_on());
+        for (w, fault) in [
+            (500.0, None),
+            (-500.0, None),
+            (500.1, Some(Fault::SpeedImplausible)),
+            (-1e30, Some(Fault::SpeedImplausible)),
+            (f32::INFINITY, Some(Fault::SpeedInvalid)),
+        ] {
+            let mut s = Supervisor::new(cfg, 1e-4).unwrap();
+            let latched = s.check(&Observation {
+                speed_rad_s: Some(w),
+                ..obs(0.0)
+            });
+            match fault {
+                None => assert!(latched.is_empty(), "{w}"),
+                Some(f) => assert_eq!(latched, FaultSet::EMPTY.with(f), "{w}"),
+            }
+        }
+        // Without a limit only non-finite speeds are faults.
+        let mut s = supervisor(1);
+        assert!(
+            s.check(&Observation {
+                speed_rad_s: Some(f32::MAX),
+                ..obs(0.0)
+            })
+            .is_empty()
+        );
+    }
+
+    #[test]
+    fn protections_list_what_is_off() {
+        let base = SupervisorConfig::new(
+            OvercurrentLimit::new(5.0, 1).unwrap(),
+            BusWindow::new(10.0, 30.0).unwrap(),
+        );
+        let off: heapless::Vec<Protection, 6> = base.protections().off().collect();
+        assert_eq!(
+            off,
+            [
+                Protection::Overload,
+                Protection::SensorStuck,
+                Protection::SpeedLimit
+            ]
+        );
+        let all = base
+            .with_thermal(ThermalConfig::from_trip_class(2.0, TripClass::Class10).unwrap())
+            .with_stuck_detection(StuckDetection::new(0, 100, 0.2).unwrap())
+            .with_speed_limit(SpeedLimit::new(100.0).unwrap());
+        assert!(all.protections().all_on());
+        assert_eq!(all.protections().on().count(), 6);
+        assert_eq!(all.stuck_detection().unwrap().ticks(), 100);
+    }
 }
