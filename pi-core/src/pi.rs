@@ -1130,4 +1130,153 @@ mod tests {
         assert_eq!(pi.integrator_v(), 6.0);
         assert_eq!(pi.update(4.0, -6.0), 10.0);
     }
+
+    #[test]
+    fn configuration_reads_back_what_was_built() {
+        let g = PiGains::from_kp_ki(2.5, 400.0)
+            .unwrap()
+            .with_setpoint_weight(0.75)
+            .unwrap();
+        assert_eq!(
+            (g.kp_v_per_a(), g.ki_v_per_a_s(), g.setpoint_weight()),
+            (2.5, 400.0, 0.75)
+        );
+        assert_eq!(g.ti_s(), 2.5 / 400.0);
+        assert_eq!(PiGains::from_kp_ki(2.0, 0.0).unwrap().ti_s(), f32::INFINITY);
+        let l = OutputLimits::new(-3.0, 7.0).unwrap();
+        assert_eq!((l.min_v(), l.max_v()), (-3.0, 7.0));
+        let c = PiConfig::new(g, 1e-4, l)
+            .unwrap()
+            .with_rule(IntegratorRule::Tustin)
+            .with_anti_windup(AntiWindup::Clamping)
+            .unwrap();
+        assert_eq!((c.gains(), c.period_s(), c.limits()), (g, 1e-4, l));
+        assert_eq!(
+            (c.rule(), c.anti_windup()),
+            (IntegratorRule::Tustin, AntiWindup::Clamping)
+        );
+        let pi = PiController::new(c);
+        assert_eq!(pi.config(), &c);
+    }
+
+    #[test]
+    fn the_loops_update_inside_known_limits_is_the_general_update() {
+        for (rule, aw) in [
+            (IntegratorRule::BackwardEuler, AntiWindup::default()),
+            (IntegratorRule::Tustin, AntiWindup::Clamping),
+        ] {
+            let mut a = controller(rule, aw);
+            let mut b = a.clone();
+            for (r, y, lo, hi) in [
+                (1.0, 0.25, -5.0, 5.0),
+                (40.0, 0.0, -5.0, 5.0),
+                (-3.0, 1.0, -2.0, 0.5),
+            ] {
+                assert_eq!(a.update_inside(r, y, lo, hi), b.update_within(r, y, lo, hi));
+                assert_eq!(a.integrator_v(), b.integrator_v());
+            }
+        }
+    }
+
+    #[test]
+    fn an_overflowing_proportional_part_saturates_on_every_path() {
+        // As `a_proportional_part_that_overflows_saturates`, for the
+        // out-of-line path (trapezoidal, clamping) and a retune handover.
+        for (rule, aw) in [
+            (IntegratorRule::Tustin, AntiWindup::default()),
+            (IntegratorRule::BackwardEuler, AntiWindup::Clamping),
+        ] {
+            let gains = PiGains::from_kp_ki(10.0, 1024.0).unwrap();
+            let cfg = PiConfig::new(gains, 1.0 / 4096.0, OutputLimits::symmetric(10.0).unwrap())
+                .unwrap()
+                .with_rule(rule)
+                .with_anti_windup(aw)
+                .unwrap();
+            let mut pi = PiController::new(cfg);
+            assert_eq!(pi.update(0.0, 1e38), -10.0, "{rule:?} {aw:?}");
+            assert_eq!(pi.saturation(), Saturation::Low);
+            assert_eq!(pi.update(0.0, -1e38), 10.0, "{rule:?} {aw:?}");
+            assert!(pi.integrator_v().is_finite());
+        }
+    }
+
+    #[test]
+    fn trapezoidal_back_calculation_tracks_instead_of_holding() {
+        // Tustin with back-calculation: an error of 1000 A saturates at once
+        // (P = 500 V). Back-calculation pulls the integrator down toward the
+        // limit, held at the far edge, -100 V; clamping would have kept it at 0.
+        let mut pi = controller(IntegratorRule::Tustin, AntiWindup::default());
+        assert_eq!(pi.update(1000.0, 0.0), 100.0);
+        assert_eq!(pi.integrator_v(), -100.0);
+        let mut pi = controller(IntegratorRule::Tustin, AntiWindup::Clamping);
+        assert_eq!(pi.update(1000.0, 0.0), 100.0);
+        assert_eq!(pi.integrator_v(), 0.0);
+    }
+
+    #[test]
+    fn back_calculation_pulls_the_integrator_by_ts_over_tt_of_the_excess() {
+        // Kp 0.5, Ki Ts 0.25, +/-100 V. From rest, r = 180 A: P = 90 V, candidate
+        // integrator 45 V, demand 135 V. Back-calculation: I = 45 + Ts / Tt (100 - 135).
+        let mut pi = controller(IntegratorRule::BackwardEuler, AntiWindup::default());
+        let ts_over_tt = pi.config().period_s() / pi.config().tracking_time_s().unwrap();
+        assert_eq!(pi.update(180.0, 0.0), 100.0);
+        let expected = 45.0 + ts_over_tt * (100.0 - 135.0);
+        assert!(
+            (pi.integrator_v() - expected).abs() < 1e-4,
+            "{}",
+            pi.integrator_v()
+        );
+        assert_eq!(pi.last_output_v(), 100.0);
+        assert_eq!(pi.last_demand_v(), 135.0);
+    }
+
+    #[test]
+    fn a_refused_input_clears_the_last_output_and_saturation() {
+        let mut pi = controller(IntegratorRule::BackwardEuler, AntiWindup::default());
+        pi.update(1e4, 0.0);
+        assert_eq!(pi.saturation(), Saturation::High);
+        assert_eq!(pi.update(f32::NAN, 0.0), 0.0);
+        assert_eq!((pi.last_output_v(), pi.last_demand_v()), (0.0, 0.0));
+        assert_eq!(pi.saturation(), Saturation::None);
+    }
+
+    #[test]
+    fn after_a_retune_the_controller_keeps_its_rule() {
+        // Backward Euler with back-calculation, retuned to Ki Ts = 0.125: the
+        // integrator then sums exactly k Ki Ts e again, on the inline path.
+        let mut pi = controller(IntegratorRule::BackwardEuler, AntiWindup::default());
+        pi.retune(PiGains::from_kp_ki(0.5, 512.0).unwrap());
+        pi.update(0.0, 0.0); // hands the retune over
+        for k in 1..=20 {
+            pi.update(1.0, 0.0);
+            assert_eq!(pi.integrator_v(), k as f32 * 0.125, "step {k}");
+        }
+        assert_eq!(pi.path, 0, "back on the common path");
+    }
+
+    #[test]
+    fn clamping_holds_the_integrator_inside_the_range_of_the_present_setpoint() {
+        // Clamping, Kp 8, b 0.5, +/-10 V: the integrator range is [-10, 10] + 4 r.
+        let gains = PiGains::from_kp_ki(8.0, 1024.0)
+            .unwrap()
+            .with_setpoint_weight(0.5)
+            .unwrap();
+        let cfg = PiConfig::new(gains, 1.0 / 4096.0, OutputLimits::symmetric(10.0).unwrap())
+            .unwrap()
+            .with_anti_windup(AntiWindup::Clamping)
+            .unwrap();
+        // Integrator 20 V (allowed at r = 4: [6, 26]); then r = 1 ([-6, 14]) with
+        // a large error pushing high: held, and cut to 14 V.
+        let mut pi = PiController::new(cfg);
+        pi.track(4.0, 4.0, 4.0).unwrap();
+        assert_eq!(pi.integrator_v(), 20.0);
+        assert_eq!(pi.update(1.0, -5.0), 10.0);
+        assert_eq!(pi.integrator_v(), 14.0);
+        // Mirror: -20 V at r = -4, then r = -1 ([-14, 6]) pushing low: -14 V.
+        let mut pi = PiController::new(cfg);
+        pi.track(-4.0, -4.0, -4.0).unwrap();
+        assert_eq!(pi.integrator_v(), -20.0);
+        assert_eq!(pi.update(-1.0, 5.0), -10.0);
+        assert_eq!(pi.integrator_v(), -14.0);
+    }
 }
