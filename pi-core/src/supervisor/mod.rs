@@ -999,7 +999,10 @@ mod tests {
         // Class 10A: tau = 232.3 s. From the heat at the trip, cooling to the
         // rated steady state (h = 1) takes tau ln(h_trip).
         let mut s = thermal_supervisor(TripClass::Class10A);
-        while s.check(&obs(14.4)).is_empty() {}
+        assert!(
+            (0..10_000).any(|_| !s.check(&obs(14.4)).is_empty()),
+            "no trip in 10 s"
+        );
         let h_trip = s.thermal().unwrap().heat() as f64;
         let tau = s.config().thermal().unwrap().tau_s() as f64;
         let cooling_ticks = (tau * h_trip.ln() * 1e3) as u32;
@@ -1164,5 +1167,61 @@ mod tests {
         buf.clear();
         core::fmt::write(&mut buf, format_args!("{}", FaultSet::EMPTY)).unwrap();
         assert_eq!(buf.as_str(), "no fault");
+    }
+
+    #[test]
+    fn configuration_reads_back_what_was_built() {
+        let oc = OvercurrentLimit::new(5.5, 4).unwrap();
+        assert_eq!((oc.threshold_a(), oc.samples()), (5.5, 4));
+        let bus = BusWindow::new(11.0, 29.0).unwrap();
+        assert_eq!((bus.min_v(), bus.max_v()), (11.0, 29.0));
+        let stuck = StuckDetection::new(3, 50, 0.25).unwrap();
+        assert_eq!(
+            (stuck.band_counts(), stuck.ticks(), stuck.min_drive()),
+            (3, 50, 0.25)
+        );
+        let speed = SpeedLimit::new(321.0).unwrap();
+        assert_eq!(speed.max_speed_rad_s(), 321.0);
+        let thermal = ThermalConfig::from_time_constant(2.5, 40.0).unwrap();
+        assert_eq!(
+            (thermal.rated_a(), thermal.tau_s(), thermal.trip_multiple()),
+            (2.5, 40.0, 1.15)
+        );
+        let cfg = SupervisorConfig::new(oc, bus)
+            .with_stuck_detection(stuck)
+            .with_speed_limit(speed)
+            .with_thermal(thermal);
+        assert_eq!((cfg.overcurrent(), cfg.bus()), (oc, bus));
+        assert_eq!(
+            (cfg.stuck_detection(), cfg.speed_limit(), cfg.thermal()),
+            (Some(stuck), Some(speed), Some(thermal))
+        );
+        let set = FaultSet::EMPTY.with(Fault::Overload).with(Fault::SensorRail);
+        assert_eq!(set.bits(), 0b1010);
+        assert!(!set.is_empty() && FaultSet::EMPTY.is_empty());
+        assert_eq!(set.union(FaultSet::EMPTY.with(Fault::Overcurrent)).bits(), 0b1011);
+    }
+
+    #[test]
+    fn protections_say_what_they_are_and_what_is_lost_without_them() {
+        assert_eq!(Protection::Overload.describe(), "I^2t winding overload");
+        assert_eq!(Protection::SensorStuck.describe(), "stuck current sensor");
+        assert_eq!(Protection::SpeedLimit.describe(), "speed plausibility");
+        let mut names = heapless::Vec::<&str, 6>::new();
+        for p in Protection::ALL {
+            assert!(!names.contains(&p.describe()), "{p:?}");
+            names.push(p.describe()).unwrap();
+            let mut buf = heapless::String::<48>::new();
+            core::fmt::write(&mut buf, format_args!("{p}")).unwrap();
+            assert_eq!(buf.as_str(), p.describe());
+            let always = matches!(
+                p,
+                Protection::Overcurrent | Protection::BusWindow | Protection::SensorReadings
+            );
+            assert_eq!(p.risk_when_off() == "nothing: it is always on", always, "{p:?}");
+        }
+        assert!(Protection::Overload.risk_when_off().contains("heats"));
+        assert!(Protection::SensorStuck.risk_when_off().contains("frozen"));
+        assert!(Protection::SpeedLimit.risk_when_off().contains("speed"));
     }
 }

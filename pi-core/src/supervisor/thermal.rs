@@ -346,6 +346,8 @@ impl ThermalModel {
 
 #[cfg(test)]
 mod tests {
+    use std::format;
+
     use super::*;
 
     #[test]
@@ -500,5 +502,47 @@ mod tests {
             m.tick(0.0);
         }
         assert!(!m.still_hot(), "{}", m.heat());
+    }
+
+    #[test]
+    fn the_quiet_step_matches_the_tick_until_the_trip_and_then_changes_nothing() {
+        // One model ticked as the supervisor's full check does, one through the
+        // quiet path's call: the same heat after every tick; at the tick that
+        // would trip, the quiet call reports it and leaves its model unchanged.
+        let c = ThermalConfig::from_time_constant(2.0, 5.0).unwrap();
+        let mut full = ThermalModel::new(c, 1e-3).unwrap();
+        let mut quiet = full.clone();
+        let mut stepped = 0;
+        loop {
+            let before = quiet.clone();
+            let outcome = quiet.add_below_trip(4.0);
+            let tripped = full.tick(4.0);
+            if tripped {
+                assert_eq!(outcome, QuietHeat::WouldTrip);
+                assert_eq!(format!("{quiet:?}"), format!("{before:?}"), "nothing changed");
+                break;
+            }
+            match outcome {
+                QuietHeat::Unchanged => {}
+                QuietHeat::Stepped { still_hot } => {
+                    stepped += 1;
+                    assert_eq!(still_hot, full.still_hot());
+                }
+                QuietHeat::WouldTrip => panic!("would trip before the tick trips"),
+            }
+            assert_eq!(format!("{quiet:?}"), format!("{full:?}"));
+        }
+        // 2 x rated: -5 ln(1 - 1.3225 / 4) = 2.0 s, about 200 thermal steps.
+        assert!((195..=205).contains(&stepped), "{stepped}");
+    }
+
+    #[test]
+    fn exactly_at_the_rated_steady_state_counts_as_cooled() {
+        let c = ThermalConfig::from_time_constant(1.0, 10.0).unwrap();
+        let mut m = ThermalModel::new(c, 0.01).unwrap();
+        m.set_heat(1.0).unwrap();
+        assert!(!m.still_hot());
+        m.set_heat(f32::from_bits(1.0f32.to_bits() + 1)).unwrap();
+        assert!(m.still_hot());
     }
 }
