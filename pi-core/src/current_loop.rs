@@ -17,9 +17,8 @@
 //! A running tick with every reading in range (current clear of the rails and
 //! within the overcurrent threshold, bus inside its window and at least the duty
 //! mapping's `min_bus_v`, speed finite and within its limit), no detector
-//! counting and no trip due
-//! takes a quiet path: the same steps with the fault check reduced to what such a
-//! tick can change. Its result is the full tick's, bit for bit (a property test
+//! counting and no trip due takes a quiet path: the same steps with the fault
+//! check reduced to what such a tick can change. Its result is the full tick's, bit for bit (a property test
 //! holds the two side by side); it exists because it is most ticks, and the
 //! cheapest (see the README's performance section).
 //!

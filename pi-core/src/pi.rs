@@ -1279,4 +1279,16 @@ mod tests {
         assert_eq!(pi.update(-1.0, 5.0), -10.0);
         assert_eq!(pi.integrator_v(), -14.0);
     }
+
+    #[test]
+    fn track_remembers_the_error_for_the_trapezoidal_rule() {
+        // Tustin, Ki Ts / 2 = 0.125: after tracking at r = 3, y = 2 (e = 1) the
+        // next step at the same point adds 0.125 (e + e_prev) = 0.25 V.
+        let mut pi = controller(IntegratorRule::Tustin, AntiWindup::default());
+        pi.track(12.0, 3.0, 2.0).unwrap();
+        assert_eq!(pi.update(3.0, 2.0), 12.25);
+        pi.track(-4.0, -1.0, 2.0).unwrap();
+        // e = -3: 0.125 (-3 - 3) = -0.75 V.
+        assert_eq!(pi.update(-1.0, 2.0), -4.75);
+    }
 }
