@@ -7,6 +7,9 @@
 //! cargo bench -p ampwright-benches --bench design
 //! ```
 
+// criterion's group and main macros define undocumented public functions.
+#![allow(missing_docs)]
+
 use std::hint::black_box;
 
 use criterion::{Criterion, criterion_group, criterion_main};

@@ -19,6 +19,9 @@
 //! ratio of `bare_pi` and `assembled_tick` to `naive_pi` on the same stream,
 //! from this run's estimates. Inputs pass through `black_box`, so nothing folds.
 
+// criterion's group and main macros define undocumented public functions.
+#![allow(missing_docs)]
+
 use std::hint::black_box;
 
 use criterion::{BatchSize, Criterion, Throughput, criterion_group};

@@ -6,6 +6,9 @@
 //! cargo bench -p ampwright-benches --bench sim_ticks
 //! ```
 
+// criterion's group and main macros define undocumented public functions.
+#![allow(missing_docs)]
+
 use criterion::{Criterion, Throughput, criterion_group, criterion_main};
 use host_sim::{Scenario, demo};
 

@@ -136,6 +136,8 @@ fn core(section: &str, e: ConfigError) -> ScenarioError {
         Requirement::DifferentFrom(other) => format!("different from {other}"),
         Requirement::AtLeastOne => "a whole number of at least 1".to_string(),
         Requirement::Required(reason) => format!("set, since {reason}"),
+        // A requirement added to pi-core later: its own sentence says what is needed.
+        _ => format!("what pi-core asks: {e}"),
     };
     let value = match e.needs {
         Requirement::Required(_) => "(missing)".to_string(),

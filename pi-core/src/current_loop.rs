@@ -64,8 +64,9 @@
 //! ```
 
 use crate::error::{CommandError, ConfigError, Requirement, non_negative};
+use crate::num::clamp;
 use crate::output::{DriveCommand, DutyMapping};
-use crate::pi::{PiConfig, PiController, PiGains, clamp};
+use crate::pi::{PiConfig, PiController, PiGains};
 use crate::sense::CurrentSense;
 use crate::setpoint::{Acceptance, SetpointLimits, SetpointShaper};
 use crate::supervisor::{Fault, FaultSet, Observation, Protections, Supervisor, SupervisorConfig};

@@ -8,11 +8,13 @@
 
 use core::fmt;
 
-use crate::supervisor::FaultSet;
+use crate::fault::FaultSet;
 
-/// What a configuration value needs to be and was not.
+/// What a configuration value needs to be and was not. New kinds of
+/// requirement may be added, so a match on it needs a wildcard arm.
 #[derive(Clone, Copy, Debug, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
 pub enum Requirement {
     /// Must be a finite number (not NaN, not infinite).
     Finite,
@@ -157,8 +159,10 @@ impl fmt::Display for ConfigError {
 }
 
 /// A command from the main loop was refused; the loop kept its previous state.
+/// New reasons may be added, so a match on it needs a wildcard arm.
 #[derive(Clone, Copy, Debug, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
 pub enum CommandError {
     /// The requested current setpoint was NaN or infinite; the old setpoint stays.
     SetpointNotFinite(f32),
@@ -171,6 +175,8 @@ pub enum CommandError {
     /// The change is only allowed while the loop is not running; disable it first.
     NotWhileRunning,
 }
+
+impl core::error::Error for ConfigError {}
 
 impl From<ConfigError> for CommandError {
     fn from(e: ConfigError) -> Self {
@@ -211,6 +217,16 @@ impl fmt::Display for CommandError {
     }
 }
 
+impl core::error::Error for CommandError {
+    fn source(&self) -> Option<&(dyn core::error::Error + 'static)> {
+        match self {
+            CommandError::Config(e) => Some(e),
+            CommandError::ClearRefused(e) => Some(e),
+            _ => None,
+        }
+    }
+}
+
 /// Fault clearing was refused: the listed causes are still present.
 ///
 /// The latch stays as it was; remove the causes (let the winding cool, restore the
@@ -231,3 +247,5 @@ impl fmt::Display for ClearRefused {
         )
     }
 }
+
+impl core::error::Error for ClearRefused {}

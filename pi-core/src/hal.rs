@@ -42,6 +42,32 @@ pub enum DriveError<PwmE, DirE, EnE> {
     Enable(EnE),
 }
 
+impl<PwmE: core::fmt::Debug, DirE: core::fmt::Debug, EnE: core::fmt::Debug> core::fmt::Display
+    for DriveError<PwmE, DirE, EnE>
+{
+    fn fmt(&self, f: &mut core::fmt::Formatter<'_>) -> core::fmt::Result {
+        match self {
+            DriveError::Pwm(e) => write!(
+                f,
+                "writing a PWM duty failed ({e:?}); the bridge may be partly updated, disable the loop"
+            ),
+            DriveError::Direction(e) => write!(
+                f,
+                "writing the direction pin failed ({e:?}); the bridge may be partly updated, disable the loop"
+            ),
+            DriveError::Enable(e) => write!(
+                f,
+                "writing the enable pin failed ({e:?}); the bridge may be partly updated, disable the loop"
+            ),
+        }
+    }
+}
+
+impl<PwmE: core::fmt::Debug, DirE: core::fmt::Debug, EnE: core::fmt::Debug> core::error::Error
+    for DriveError<PwmE, DirE, EnE>
+{
+}
+
 /// A stand-in for an absent enable pin: does nothing, never fails.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
 pub struct NoPin;

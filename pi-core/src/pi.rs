@@ -74,6 +74,7 @@
 //! ```
 
 use crate::error::{ConfigError, Requirement, finite, non_negative, positive, within};
+use crate::num::clamp;
 
 /// How the integral is discretised.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Default)]
@@ -397,14 +398,6 @@ mod path {
     pub const CLAMPING: u8 = 2;
     /// New gains wait to be handed over at the next update.
     pub const RETUNE: u8 = 4;
-}
-
-/// Clamp without the panic that `f32::clamp` carries for `lo > hi` or NaN bounds.
-/// A NaN `x` yields `lo`; callers keep `x` finite.
-#[inline(always)]
-pub(crate) fn clamp(x: f32, lo: f32, hi: f32) -> f32 {
-    let y = if x > lo { x } else { lo };
-    if y < hi { y } else { hi }
 }
 
 /// The PI controller with its state.

@@ -17,7 +17,7 @@
 //! ```
 
 use crate::error::{CommandError, ConfigError, Requirement, finite};
-use crate::pi::clamp;
+use crate::num::clamp;
 
 /// Validated setpoint limits and slew rate.
 #[derive(Clone, Copy, Debug, PartialEq)]

@@ -24,14 +24,13 @@ pub mod cancellation;
 pub mod discrete;
 pub mod modulus_optimum;
 pub mod poly;
-pub mod real;
 pub mod root_locus;
 
 use core::fmt;
 
 use crate::error::ConfigError;
+pub use crate::num::Real;
 use crate::pi::PiGains;
-pub use real::Real;
 
 /// The winding: `R` (ohm) and `L` (H), both finite and positive.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -189,8 +188,10 @@ impl<T: Real> Gains<T> {
     }
 }
 
-/// Why a design could not be made, with the nearest thing that can.
+/// Why a design could not be made, with the nearest thing that can. New
+/// reasons may be added, so a match on it needs a wildcard arm.
 #[derive(Clone, Copy, Debug, PartialEq)]
+#[non_exhaustive]
 pub enum DesignError<T> {
     /// A parameter that must be finite and positive was not.
     NotPositive {
@@ -224,6 +225,8 @@ pub enum DesignError<T> {
     /// The direct discrete method does not handle a current filter yet.
     FilterUnsupported,
 }
+
+impl<T: Real> core::error::Error for DesignError<T> {}
 
 impl<T: Real> fmt::Display for DesignError<T> {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {

@@ -7,7 +7,7 @@
 //! radius, which converges for the well-separated and the clustered roots these
 //! loops have; a fixed iteration cap keeps it bounded on the device.
 
-use crate::design::real::Real;
+use crate::num::Real;
 
 /// The largest degree handled.
 pub const MAX_DEGREE: usize = 5;

@@ -1,5 +1,9 @@
-//! The number type of the design math: `f32` on the device, `f64` on the host,
-//! one implementation for both.
+//! Numeric helpers shared by the control path and the design math. A leaf: it
+//! imports nothing from the rest of the crate.
+//!
+//! * [`clamp`]: limiting without the panic of `f32::clamp`.
+//! * [`Real`]: the number type of the design math, `f32` on the device and
+//!   `f64` on the host, one implementation for both.
 //!
 //! Every function goes through `libm`, never through `std` or an approximation
 //! crate, so host tests exercise exactly the code the device runs (with `f32`).
@@ -8,6 +12,15 @@
 //! more, which is too coarse for gains.
 
 use core::ops::{Add, Div, Mul, Neg, Sub};
+
+/// `x` limited to `[lo, hi]`, without the panic that `f32::clamp` carries for
+/// `lo > hi` or NaN bounds (the control path must not panic). A NaN `x` yields
+/// `lo`; with `lo > hi` the result is `hi`.
+#[inline(always)]
+pub fn clamp(x: f32, lo: f32, hi: f32) -> f32 {
+    let y = if x > lo { x } else { lo };
+    if y < hi { y } else { hi }
+}
 
 /// A floating-point type the design math runs in.
 pub trait Real:
