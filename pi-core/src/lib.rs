@@ -38,6 +38,11 @@
 //!   queue, with a control-interrupt skeleton.
 //! * [`hal`]: embedded-hal 1.0 adapters for sign-magnitude and two-PWM bridges.
 //!
+//! Underneath, two leaves that import nothing from the rest of the crate:
+//! [`fault`] (the fault causes and sets of them) and [`num`] (the panic-free
+//! `clamp`, and the `Real` number type of the design math); [`error`] holds the
+//! typed errors and imports only [`fault`].
+//!
 //! Off the tick path, [`design`] turns a winding, a sampling description and a
 //! spec into gains (root locus, pole-zero cancellation, modulus optimum, direct
 //! discrete placement) and analyses any gains on the sampled loop; it is generic
