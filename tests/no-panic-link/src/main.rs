@@ -5,7 +5,8 @@
 //! binary: start-up (every constructor, the offset calibration, `set_sense`, a
 //! hot start through the supervisor), the main loop (commands through the
 //! handoff queue, telemetry, the on-device design of new gains), the control
-//! interrupt (`tick`, both HAL adapters) and the bare PI on its own. The panic
+//! interrupt (`tick`, both HAL adapters), and the bare PI, the supervisor, the
+//! setpoint shaper and the duty mapping on their own. The panic
 //! handler calls a function that exists nowhere: if any panic remains reachable
 //! after optimisation, the link fails naming `control_path_reached_a_panic`.
 //! `check.sh` links it for Cortex-M4F and for Cortex-M0.
@@ -21,7 +22,7 @@ use embedded_hal::pwm::{ErrorKind as PwmErrorKind, ErrorType as PwmErrorType, Se
 use pi_core::design::{RlPlant, Sampling, Spec, analysis::OpenLoop, discrete};
 use pi_core::heapless::spsc::Queue;
 use pi_core::prelude::*;
-use pi_core::{OffsetCalibration, OffsetProgress};
+use pi_core::{Observation, OffsetCalibration, OffsetProgress, SetpointShaper, Supervisor};
 
 unsafe extern "C" {
     fn control_path_reached_a_panic() -> !;
@@ -189,6 +190,41 @@ fn bare_pi() {
     pi.reset();
 }
 
+/// The other pieces on their own, as a firmware that assembles its own loop
+/// would use them: two-point calibration, the supervisor, the setpoint shaper,
+/// the duty mapping.
+fn parts_alone() {
+    if let Ok(sense) = CurrentSense::from_two_points(12, (black_box(1024), -2.0), (black_box(3072), 2.0)) {
+        black_box(sense.to_amperes(black_box(2000)));
+        black_box(sense.at_rail(black_box(4095)));
+    }
+    if let (Ok(oc), Ok(bus)) = (
+        OvercurrentLimit::new(black_box(6.0), black_box(2)),
+        BusWindow::new(black_box(18.0), black_box(30.0)),
+    ) && let Ok(mut supervisor) = Supervisor::new(SupervisorConfig::new(oc, bus), black_box(50e-6))
+    {
+        let latched = supervisor.check(&Observation {
+            current_a: black_box(1.0),
+            counts: black_box(2100),
+            at_rail: black_box(false),
+            bus_v: black_box(24.0),
+            speed_rad_s: black_box(None),
+            drive: black_box(0.3),
+        });
+        black_box(latched.earliest());
+        black_box(supervisor.clear().is_ok());
+    }
+    if let Ok(limits) = SetpointLimits::new(black_box(-4.0), black_box(4.0), black_box(2000.0)) {
+        let mut shaper = SetpointShaper::new(limits, black_box(50e-6));
+        black_box(shaper.request(black_box(9.0)).is_ok());
+        black_box(shaper.advance());
+    }
+    if let Ok(duty) = DutyMapping::new(black_box(0.95), black_box(12.0)) {
+        black_box(duty.command(black_box(5.0), black_box(24.0)));
+        black_box(duty.available_v(black_box(24.0)));
+    }
+}
+
 #[unsafe(no_mangle)]
 pub extern "C" fn _start() -> ! {
     let Some(mut cl) = build() else {
@@ -197,6 +233,7 @@ pub extern "C" fn _start() -> ! {
         }
     };
     bare_pi();
+    parts_alone();
     let mut queue: Queue<Command, 8> = Queue::new();
     let (mut to_isr, mut from_main) = queue.split();
     let mut sign_magnitude = SignMagnitude::new(Pwm, Pin, Pin);
