@@ -3,7 +3,7 @@
 
 use std::fmt::Write;
 
-use pi_core::{Fault, LoopConfig, Protection};
+use pi_core::{FaultSet, LoopConfig, Protection};
 use serde::Serialize;
 
 use crate::bridge::Modulation;
@@ -162,15 +162,13 @@ pub fn summarise(scenario: &Scenario, trace: &Trace) -> Report {
     let checks = metrics::verdict(&steps, &scenario.spec);
     let pass = (!checks.is_empty()).then(|| checks.iter().all(|c| c.pass));
     let all_bits = trace.points.iter().fold(0u16, |acc, p| acc | p.fault_bits);
-    let faults_latched = Fault::ALL
+    let faults_latched = FaultSet::from_bits(all_bits)
         .iter()
-        .filter(|f| all_bits & (**f as u16) != 0)
         .map(|f| f.describe().to_string())
         .collect();
     let first_fault = trace.points.iter().find(|p| p.fault_bits != 0).and_then(|p| {
-        Fault::ALL
-            .iter()
-            .find(|f| p.fault_bits & (**f as u16) != 0)
+        FaultSet::from_bits(p.fault_bits)
+            .earliest()
             .map(|f| (f.describe().to_string(), p.t_s))
     });
     let bridge = scenario.chain.bridge.params();

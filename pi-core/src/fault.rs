@@ -114,6 +114,12 @@ impl FaultSet {
         self.0
     }
 
+    /// The set a telemetry word stands for (the inverse of [`FaultSet::bits`]);
+    /// bits that are no cause are dropped.
+    pub fn from_bits(bits: u16) -> FaultSet {
+        FaultSet(bits & ((1 << Fault::ALL.len()) - 1))
+    }
+
     /// The earliest cause in tie-break order, if any.
     pub fn earliest(self) -> Option<Fault> {
         Fault::ALL.into_iter().find(|f| self.contains(*f))
@@ -175,5 +181,13 @@ mod tests {
         buf.clear();
         core::fmt::write(&mut buf, format_args!("{}", FaultSet::EMPTY)).unwrap();
         assert_eq!(buf.as_str(), "no fault");
+    }
+
+    #[test]
+    fn a_telemetry_word_reads_back_as_its_set() {
+        let set = FaultSet::EMPTY.with(Fault::BusInvalid).with(Fault::SensorStuck);
+        assert_eq!(FaultSet::from_bits(set.bits()), set);
+        assert_eq!(FaultSet::from_bits(0xffff).iter().count(), Fault::ALL.len());
+        assert_eq!(FaultSet::from_bits(0xfc00), FaultSet::EMPTY);
     }
 }
