@@ -144,3 +144,55 @@ impl Real for f64 {
         f64::is_finite(self)
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Each function of `Real` at one point, against the value printed by
+    /// Python's `math` module (`repr(math.sqrt(2))` and so on, correctly
+    /// rounded f64), within `tol` relative.
+    fn functions_match_their_reference_values<T: Real>(tol: f64) {
+        let close = |got: T, want: f64| {
+            let g = got.to_f64();
+            assert!((g - want).abs() <= tol * want.abs(), "{g} vs {want}");
+        };
+        close(T::of(2.0).sqrt(), 1.4142135623730951);
+        close(T::ONE.exp(), 2.718281828459045);
+        close(T::of(1e-5).exp_m1(), 1.0000050000166668e-05);
+        close(T::of(10.0).ln(), 2.302585092994046);
+        // The second quadrant: atan2 must use both signs.
+        close(T::ONE.atan2(-T::ONE), 2.356194490192345);
+        close(T::ONE.cos(), 0.5403023058681398);
+        close(T::ONE.sin(), 0.8414709848078965);
+        close(T::PI, core::f64::consts::PI);
+        assert_eq!(T::of(0.25).to_f64(), 0.25);
+        assert_eq!(T::of(-2.5).abs().to_f64(), 2.5);
+        assert_eq!(T::of(3.0).abs().to_f64(), 3.0);
+        let (two, three) = (T::of(2.0), T::of(3.0));
+        assert_eq!((two.max(three).to_f64(), three.max(two).to_f64()), (3.0, 3.0));
+        assert_eq!((two.min(three).to_f64(), three.min(two).to_f64()), (2.0, 2.0));
+        assert!(T::ONE.is_finite());
+        assert!(!(T::ONE / T::ZERO).is_finite());
+        assert!(!(T::ZERO / T::ZERO).is_finite());
+    }
+
+    #[test]
+    fn f32_functions_match_their_reference_values() {
+        functions_match_their_reference_values::<f32>(2.0 * f32::EPSILON as f64);
+    }
+
+    #[test]
+    fn f64_functions_match_their_reference_values() {
+        functions_match_their_reference_values::<f64>(2.0 * f64::EPSILON);
+    }
+
+    #[test]
+    fn clamp_limits_and_never_panics() {
+        assert_eq!(clamp(5.0, -1.0, 2.0), 2.0);
+        assert_eq!(clamp(-5.0, -1.0, 2.0), -1.0);
+        assert_eq!(clamp(0.5, -1.0, 2.0), 0.5);
+        assert_eq!(clamp(f32::NAN, -1.0, 2.0), -1.0);
+        assert_eq!(clamp(0.5, 2.0, -1.0), -1.0, "inverted bounds: the upper one");
+    }
+}
