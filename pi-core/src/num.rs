@@ -151,7 +151,9 @@ mod tests {
 
     /// Each function of `Real` at one point, against the value printed by
     /// Python's `math` module (`repr(math.sqrt(2))` and so on, correctly
-    /// rounded f64), within `tol` relative.
+    /// rounded f64), within `tol` relative. The references are written out as
+    /// printed, not taken from `core::f64::consts`, and `0 / 0` is the NaN.
+    #[allow(clippy::approx_constant, clippy::eq_op)]
     fn functions_match_their_reference_values<T: Real>(tol: f64) {
         let close = |got: T, want: f64| {
             let g = got.to_f64();
