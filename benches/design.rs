@@ -21,7 +21,7 @@ fn design(c: &mut Criterion) {
     g.bench_function("direct_discrete_f64", |b| {
         b.iter(|| {
             let plant = RlPlant::new(black_box(1.9f64), black_box(2.4e-3)).unwrap();
-            let sampling = Sampling::new(black_box(50e-6f64), true, 0.0).unwrap();
+            let sampling = Sampling::new(black_box(50e-6f64), 1.0, 0.0).unwrap();
             let spec = Spec::new(black_box(2e-3f64), black_box(0.05)).unwrap();
             discrete::design(&plant, &sampling, &spec).unwrap()
         })
@@ -29,13 +29,13 @@ fn design(c: &mut Criterion) {
     g.bench_function("direct_discrete_f32", |b| {
         b.iter(|| {
             let plant = RlPlant::new(black_box(1.9f32), black_box(2.4e-3)).unwrap();
-            let sampling = Sampling::new(black_box(50e-6f32), true, 0.0).unwrap();
+            let sampling = Sampling::new(black_box(50e-6f32), 1.0, 0.0).unwrap();
             let spec = Spec::new(black_box(2e-3f32), black_box(0.05)).unwrap();
             discrete::design(&plant, &sampling, &spec).unwrap()
         })
     });
     let plant = RlPlant::new(1.9f64, 2.4e-3).unwrap();
-    let sampling = Sampling::new(50e-6f64, true, 0.0).unwrap();
+    let sampling = Sampling::new(50e-6f64, 1.0, 0.0).unwrap();
     let gains = discrete::design(&plant, &sampling, &Spec::new(2e-3, 0.05).unwrap()).unwrap();
     g.bench_function("poles_f64", |b| {
         b.iter(|| OpenLoop::new(black_box(&plant), &sampling, &gains).poles())

@@ -14,7 +14,8 @@
 //!
 //! The designs run in f64 here and in f32 on the device, through the same code.
 
-use pi_core::design::analysis::{self, Margins, OpenLoop, StepPrediction};
+use pi_core::design::analysis::{self, Margins, OpenLoop};
+use pi_core::design::step::StepMetrics;
 use pi_core::design::{
     DesignError, Gains, RlPlant, Sampling, Spec, cancellation, discrete, modulus_optimum, root_locus,
 };
@@ -44,8 +45,8 @@ pub struct Basis {
     pub inductance_h: f64,
     /// Control period, s.
     pub period_s: f64,
-    /// Whether a one-period computation delay is modelled.
-    pub one_period_delay: bool,
+    /// Sample-to-update delay, control periods.
+    pub delay_periods: f64,
     /// Current filter time constant, s (0: none).
     pub filter_tau_s: f64,
     /// 2 % settling time asked, s.
@@ -178,7 +179,7 @@ pub fn basis_from(
         resistance_ohm: motor.resistance_ohm,
         inductance_h: motor.inductance_h,
         period_s: timing.control_period_s(),
-        one_period_delay: effective_delay > 0.25 * timing.control_period_s(),
+        delay_periods: effective_delay / timing.control_period_s(),
         filter_tau_s,
         settling_time_s: spec
             .settling_time_s
@@ -215,7 +216,7 @@ pub fn design(s: &Scenario) -> Result<DesignReport, DesignFailure> {
 /// Designs from a basis (see [`basis_from`]).
 pub fn design_basis(name: &str, b: Basis) -> Result<DesignReport, DesignFailure> {
     let plant = RlPlant::new(b.resistance_ohm, b.inductance_h).map_err(invalid)?;
-    let sampling = Sampling::new(b.period_s, b.one_period_delay, b.filter_tau_s).map_err(invalid)?;
+    let sampling = Sampling::new(b.period_s, b.delay_periods, b.filter_tau_s).map_err(invalid)?;
     let spec = Spec::new(b.settling_time_s, b.overshoot).map_err(invalid)?;
     let mut warnings = Vec::new();
     // Rise of the second-order target, about (1.8 / wn) for these dampings
@@ -241,7 +242,7 @@ pub fn design_basis(name: &str, b: Basis) -> Result<DesignReport, DesignFailure>
     // A filter much faster than the period hardly moves the dominant poles: the
     // direct method, which cannot include it, designs without it, and the
     // analysis below puts it back.
-    let unfiltered = Sampling::new(b.period_s, b.one_period_delay, 0.0).map_err(invalid)?;
+    let unfiltered = Sampling::new(b.period_s, b.delay_periods, 0.0).map_err(invalid)?;
     let fast_filter = b.filter_tau_s > 0.0 && b.filter_tau_s < 0.1 * b.period_s;
     let direct = if fast_filter {
         discrete::design(&plant, &unfiltered, &spec)
@@ -388,7 +389,7 @@ fn analyse(
     let ts = sampling.period_s();
     let horizon = |period: f64| ((6.0 * spec.settling_time_s() / period) as usize).clamp(200, 200_000);
     // Near-continuous: a period a hundredth of the real one, no delay, no filter.
-    if let Ok(fine) = Sampling::new(ts / 100.0, false, 0.0) {
+    if let Ok(fine) = Sampling::new(ts / 100.0, 0.0, 0.0) {
         let p = analysis::predict_step(
             &OpenLoop::new(plant, &fine, &g),
             ts / 100.0,
@@ -410,7 +411,7 @@ fn analyse(
             .push("the sampled loop is unstable with these gains".into());
         return r;
     }
-    let p: StepPrediction<f64> = analysis::predict_step(&open, ts, horizon(ts), weight);
+    let p: StepMetrics<f64> = analysis::predict_step(&open, ts, horizon(ts), weight);
     r.discrete_overshoot = Some(p.overshoot);
     r.discrete_settling_s = p.settling_time_s;
     r.discrete_rise_s = p.rise_time_s;
@@ -463,15 +464,11 @@ impl DesignReport {
         let _ = writeln!(s, "{}: PI design", self.name);
         let _ = writeln!(
             s,
-            "winding R = {} ohm, L = {} H; Ts = {} us, {}, {}; spec {:.3} ms settling (2 %), {:.1} % overshoot\n",
+            "winding R = {} ohm, L = {} H; Ts = {} us, delay {:.2} periods, {}; spec {:.3} ms settling (2 %), {:.1} % overshoot\n",
             b.resistance_ohm,
             b.inductance_h,
             b.period_s * 1e6,
-            if b.one_period_delay {
-                "one-period delay"
-            } else {
-                "no delay"
-            },
+            b.delay_periods,
             if b.filter_tau_s > 0.0 {
                 format!("filter tau {:.2} us", b.filter_tau_s * 1e6)
             } else {
@@ -576,7 +573,7 @@ impl DesignReport {
         let b = &self.basis;
         Some((
             RlPlant::new(b.resistance_ohm, b.inductance_h).ok()?,
-            Sampling::new(b.period_s, b.one_period_delay, b.filter_tau_s).ok()?,
+            Sampling::new(b.period_s, b.delay_periods, b.filter_tau_s).ok()?,
             Gains {
                 kp_v_per_a: m.kp_v_per_a?,
                 ti_s: m.ti_s?,

@@ -7,8 +7,13 @@ library can do the work:
   sampled loop is built symbolically from numpy polynomials and the gains solved
   from the desired poles by least squares (numpy.linalg.lstsq), not by the
   closed forms of discrete.rs;
-* discrete closed-loop poles of each design: control.feedback(...).poles() on the
-  loop built from control.c2d (zero-order hold), the PI and the delay;
+* the sampled plant with its sample-to-update delay of D periods (0 <= D <= 1):
+  an exact discretisation of the state-space winding (and filter) whose input
+  changes D Ts after each sample, from scipy.linalg.expm of the augmented
+  matrix (the input of the last period kept as an extra state), not the
+  partial fractions of analysis.rs; D = 0 is control.c2d's zero-order hold;
+* discrete closed-loop poles of each design: control.feedback(...).poles() on
+  the loop built from that plant and the PI;
 * gain and phase margins: control.stability_margins on the same open loop;
 * the largest stable control period: bisection on the pole magnitude of the
   loop rebuilt at each period;
@@ -34,21 +39,36 @@ os.environ.setdefault("OPENBLAS_CORETYPE", "Haswell")
 import control  # noqa: E402
 import numpy as np  # noqa: E402
 import scipy  # noqa: E402
+import scipy.linalg  # noqa: E402
+import scipy.optimize  # noqa: E402
 import scipy.signal  # noqa: E402
 from reference_io import write_or_check  # noqa: E402
 
 HERE = Path(__file__).resolve().parent
 OUT = HERE / "design_reference.json"
 
+# delay: the sample-to-update delay in control periods.
 CASES = [
-    dict(name="demo_winding", r=1.9, l=2.4e-3, ts=50e-6, delay=True, tau=0.0, settling=2e-3, overshoot=0.05),
-    dict(name="demo_no_delay", r=1.9, l=2.4e-3, ts=50e-6, delay=False, tau=0.0, settling=1e-3, overshoot=0.10),
-    dict(name="solenoid_slow_loop", r=12.0, l=30e-3, ts=200e-6, delay=True, tau=0.0, settling=15e-3, overshoot=0.02),
-    dict(name="voice_coil_filtered", r=4.0, l=0.6e-3, ts=25e-6, delay=True, tau=4e-6, settling=1.2e-3, overshoot=0.05),
+    dict(name="demo_winding", r=1.9, l=2.4e-3, ts=50e-6, delay=1.0, tau=0.0, settling=2e-3, overshoot=0.05),
+    dict(name="demo_no_delay", r=1.9, l=2.4e-3, ts=50e-6, delay=0.0, tau=0.0, settling=1e-3, overshoot=0.10),
+    dict(name="solenoid_slow_loop", r=12.0, l=30e-3, ts=200e-6, delay=1.0, tau=0.0, settling=15e-3, overshoot=0.02),
+    dict(name="voice_coil_filtered", r=4.0, l=0.6e-3, ts=25e-6, delay=1.0, tau=4e-6, settling=1.2e-3, overshoot=0.05),
+    dict(name="demo_centre_sample", r=1.9, l=2.4e-3, ts=50e-6, delay=0.5, tau=0.0, settling=1.5e-3, overshoot=0.05),
+    dict(name="fan_short_compute", r=0.8, l=0.9e-3, ts=40e-6, delay=0.3, tau=0.0, settling=1.0e-3, overshoot=0.08),
+    dict(name="demo_no_overshoot", r=1.9, l=2.4e-3, ts=50e-6, delay=0.5, tau=0.0, settling=2e-3, overshoot=0.0),
+    dict(name="voice_coil_centre_filtered", r=4.0, l=0.6e-3, ts=25e-6, delay=0.5, tau=4e-6, settling=1.2e-3, overshoot=0.05),
 ]
 
 
+def critical_settling_wn_ts():
+    """wn ts of a critically damped second-order step entering the 2 % band."""
+    return scipy.optimize.brentq(lambda x: (1 + x) * math.exp(-x) - 0.02, 1.0, 20.0, xtol=1e-15)
+
+
 def spec_poles(settling, overshoot):
+    if overshoot == 0.0:
+        wn = critical_settling_wn_ts() / settling
+        return wn, wn, 0.0
     ln = math.log(overshoot)
     zeta = -ln / math.sqrt(math.pi ** 2 + ln ** 2)
     sigma = 4.0 / settling
@@ -57,23 +77,69 @@ def spec_poles(settling, overshoot):
     return sigma, wn, wd
 
 
-def measured_plant(c):
-    """The current as the controller sees it: winding, then the filter if any."""
-    g = control.tf([1.0], [c["l"], c["r"]])
-    if c["tau"] > 0:
-        g = g * control.tf([1.0], [c["tau"], 1.0])
-    return g
+def continuous_plant(c, measured):
+    """State space of the winding (state i) and the filter (state y): A, B, C."""
+    r, l, tau = c["r"], c["l"], c["tau"]
+    if tau > 0:
+        a = np.array([[-r / l, 0.0], [1.0 / tau, -1.0 / tau]])
+        b = np.array([[1.0 / l], [0.0]])
+        out = np.array([[0.0, 1.0]]) if measured else np.array([[1.0, 0.0]])
+    else:
+        a = np.array([[-r / l]])
+        b = np.array([[1.0 / l]])
+        out = np.array([[1.0]])
+    return a, b, out
+
+
+def held_integral(a, b, t):
+    """(exp(A t), integral_0^t exp(A s) ds B) from the augmented matrix exponential."""
+    n = a.shape[0]
+    m = np.zeros((n + 1, n + 1))
+    m[:n, :n] = a
+    m[:n, n:] = b
+    e = scipy.linalg.expm(m * t)
+    return e[:n, :n], e[:n, n:]
+
+
+def sampled_plant(c, measured=True):
+    """The held plant whose input changes delay * ts after each sample, exactly."""
+    ts, dly = c["ts"], c["delay"] * c["ts"]
+    a, b, out = continuous_plant(c, measured)
+    if dly == 0.0:
+        return control.c2d(control.ss(a, b, out, 0.0), ts, method="zoh")
+    n = a.shape[0]
+    phi, _ = held_integral(a, b, ts)
+    phi_late, gamma0 = held_integral(a, b, ts - dly)
+    _, early = held_integral(a, b, dly)
+    gamma1 = phi_late @ early
+    big_a = np.zeros((n + 1, n + 1))
+    big_a[:n, :n] = phi
+    big_a[:n, n:] = gamma1
+    big_b = np.vstack([gamma0, [[1.0]]])
+    big_c = np.hstack([out, [[0.0]]])
+    return control.ss(big_a, big_b, big_c, 0.0, ts)
+
+
+def plant_tf(c, measured=True):
+    """sampled_plant as a transfer function, with the numerator's leading
+    coefficients that are round-off (below 1e-12 of the largest) taken out: at
+    D = 1 the input of the period itself has no effect, and a leading 1e-20
+    would put a spurious zero near infinity."""
+    tf = control.ss2tf(sampled_plant(c, measured))
+    num = np.asarray(tf.num[0][0], dtype=float)
+    den = np.asarray(tf.den[0][0], dtype=float)
+    big = np.max(np.abs(num))
+    k = 0
+    while k < len(num) - 1 and abs(num[k]) < 1e-12 * big:
+        k += 1
+    return control.tf(num[k:], den, c["ts"])
 
 
 def open_loop(c, kp, ti):
     ts = c["ts"]
-    gd = control.c2d(measured_plant(c), ts, method="zoh")
     z = control.tf([1, 0], [1], ts)
     pi = kp + (kp / ti) * ts * z / (z - 1)
-    loop = pi * gd
-    if c["delay"]:
-        loop = loop * (1 / z)
-    return loop
+    return pi * plant_tf(c)
 
 
 def discrete_poles(c, kp, ti):
@@ -83,23 +149,24 @@ def discrete_poles(c, kp, ti):
 def direct_discrete(c):
     """Gains placing the dominant pair; solved numerically from polynomials."""
     ts = c["ts"]
-    a = math.exp(-c["r"] * ts / c["l"])
-    b = (1 - a) / c["r"]
     sigma, _, wd = spec_poles(c["settling"], c["overshoot"])
     p = complex(math.exp(-sigma * ts) * math.cos(wd * ts), math.exp(-sigma * ts) * math.sin(wd * ts))
     pair = np.real(np.poly([p, p.conjugate()]))
-    base = np.polymul([1, -1], [1, -a])  # (z - 1)(z - a)
-    if c["delay"]:
-        base = np.polymul(base, [1, 0])
-    # char(z) = base + b (k1 z - k0), unknowns k1, k0 and the remaining factor.
+    tf = plant_tf(c)
+    num = np.trim_zeros(np.asarray(tf.num[0][0], dtype=float), "f")
+    den = np.asarray(tf.den[0][0], dtype=float)
+    num, den = num / den[0], den / den[0]
+    base = np.polymul([1, -1], den)  # (z - 1) den(z)
+    # char(z) = base + (k1 z - k0) num(z), unknowns k1, k0 and the remaining factor.
     n = len(base) - 1
     rest = n - 2  # degree of the free factor (monic)
-    # Unknowns x = [k1, k0, r_1..r_rest]: base + b k1 z - b k0 = pair * (z^rest + r_1 z^(rest-1) + ...)
     rows = n + 1
     m = np.zeros((rows, 2 + rest))
     rhs = -np.asarray(base, dtype=float)
-    m[rows - 2, 0] += b
-    m[rows - 1, 1] -= b
+    k1_col = np.polymul([1, 0], num)
+    k0_col = -np.asarray(num)
+    m[rows - len(k1_col):, 0] += k1_col
+    m[rows - len(k0_col):, 1] += k0_col
     lead = np.polymul(pair, [1] + [0] * rest)
     rhs = rhs + lead
     for j in range(rest):
@@ -122,13 +189,12 @@ def step_metrics(c, kp, ti, b):
     ki_ts = kp / ti * ts
     pi_err = kp + ki_ts * z / (z - 1)          # acts on e = r - y
     pi_ref = (b - 1) * kp                       # extra proportional action on r
-    g_true = control.c2d(control.tf([1.0], [c["l"], c["r"]]), ts, method="zoh")
-    g_meas = control.c2d(measured_plant(c), ts, method="zoh")
-    d = (1 / z) if c["delay"] else control.tf([1], [1], ts)
-    # u = pi_err (r - ym) + pi_ref r ; i = g_true d u ; ym = g_meas d u
-    loop = pi_err * d * g_meas
+    g_true = plant_tf(c, measured=False)
+    g_meas = plant_tf(c)
+    # u = pi_err (r - ym) + pi_ref r ; i = g_true u ; ym = g_meas u
+    loop = pi_err * g_meas
     u_from_r = (pi_err + pi_ref) / (1 + loop)
-    y = control.minreal(u_from_r * d * g_true, verbose=False)
+    y = control.minreal(u_from_r * g_true, verbose=False)
     n = int(6 * c["settling"] / ts)
     t = np.arange(n) * ts
     res = control.forced_response(y, T=t, U=np.ones(n))
@@ -177,7 +243,7 @@ def case_values(c):
         # scipy cross-check of the same continuous loop.
         _, p_sp, _ = scipy.signal.tf2zpk([kp_rl, kp_rl / designs["root_locus"][1]], np.polyadd(np.polymul([1, 0], [c["l"], c["r"]]), [kp_rl, kp_rl / designs["root_locus"][1]]))
         assert np.allclose(sorted(p_sp, key=lambda z: z.imag), sorted(np.roots(den), key=lambda z: z.imag))
-    t_sigma = (c["ts"] if c["delay"] else 0.0) + c["ts"] / 2 + c["tau"]
+    t_sigma = c["delay"] * c["ts"] + c["ts"] / 2 + c["tau"]
     designs["modulus_optimum"] = (c["l"] / (2 * t_sigma), c["l"] / c["r"])
     if c["tau"] == 0:
         designs["direct_discrete"] = direct_discrete(c)

@@ -155,7 +155,7 @@ fn probe_loop_tick(cl: &mut CurrentLoop, input: &TickInput) -> DriveCommand {
 #[unsafe(no_mangle)]
 fn probe_design(r_ohm: f32, l_h: f32, ts_s: f32, settling_s: f32, overshoot: f32) -> f32 {
     let plant = RlPlant::new(r_ohm, l_h);
-    let sampling = Sampling::new(ts_s, true, 0.0);
+    let sampling = Sampling::new(ts_s, 1.0, 0.0);
     let spec = Spec::new(settling_s, overshoot);
     if let (Ok(p), Ok(s), Ok(sp)) = (plant, sampling, spec)
         && let Ok(g) = discrete::design(&p, &s, &sp)

@@ -36,7 +36,7 @@ pub fn run(args: &DesignArgs) -> i32 {
         set(&mut b.filter_tau_s, args.filter_tau_s);
         set(&mut b.supply_v, args.supply_v);
         if let Some(d) = args.delay {
-            b.one_period_delay = d;
+            b.delay_periods = if d { 1.0 } else { 0.0 };
         }
         design_report::design_basis(&scenario.name, b)
     }) {

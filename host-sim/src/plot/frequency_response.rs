@@ -3,7 +3,7 @@
 //! in dB above, phase in degrees below, with the crossover, the phase margin and
 //! the gain margin marked.
 
-use pi_core::design::analysis::{Margins, OpenLoop};
+use pi_core::design::analysis::{self, Margins, OpenLoop};
 use pi_core::design::poly::Complex;
 
 use crate::plot::svg::{Axis, Canvas, padded};
@@ -28,17 +28,9 @@ pub fn frequency_response_svg(title: &str, open: &OpenLoop<f64>, period_s: f64, 
         let lf = lx0 + (lx1 - lx0) * k as f64 / n as f64;
         let f = if k == n { nyquist } else { 10f64.powf(lf) };
         let l = open.eval(Complex::unit(2.0 * std::f64::consts::PI * f * period_s));
-        let mut ph = l.arg().to_degrees();
-        if let Some(p) = prev_phase {
-            while ph - p > 180.0 {
-                ph -= 360.0;
-            }
-            while ph - p <= -180.0 {
-                ph += 360.0;
-            }
-        }
+        let ph = prev_phase.map_or(l.arg(), |p| analysis::unwrap_phase(p, l.arg()));
         prev_phase = Some(ph);
-        pts.push((f.log10(), 20.0 * l.abs().log10(), ph));
+        pts.push((f.log10(), 20.0 * l.abs().log10(), ph.to_degrees()));
     }
     let (left, right) = (80.0, w - 30.0);
     let x = Axis {

@@ -65,15 +65,13 @@ pub fn root_locus_svg(
     if let Some(p) = Poly::new(den) {
         poles.extend_from_slice(&p.roots()[..p.degree()]);
     }
-    if open.has_delay() {
-        poles.push(Complex::real(0.0));
-    }
     for z in &poles {
         cross(&mut c, &x, &y, *z);
     }
     let mut zeros = vec![Complex::real(open.pi_zero())];
-    if num[0] != 0.0 {
-        zeros.push(Complex::real(-num[1] / num[0]));
+    let first = num.iter().position(|&c| c != 0.0).unwrap_or(num.len());
+    if let Some(p) = Poly::new(&num[first..]) {
+        zeros.extend_from_slice(&p.roots()[..p.degree()]);
     }
     for z in &zeros {
         ring(&mut c, &x, &y, *z, OPEN);

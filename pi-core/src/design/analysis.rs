@@ -1,70 +1,226 @@
 //! What given gains do on the sampled loop: closed-loop poles, stability,
 //! margins, the largest stable period and the predicted step response, all from
-//! the linear discrete model of [`crate::design::discrete`], extended by the
-//! current filter when there is one.
+//! an exact discrete model of the held, delayed, optionally filtered winding.
 //!
-//! With a first-order filter of time constant `tau` on the measurement, the
-//! controller sees the winding through `1 / ((L s + R)(tau s + 1))`, held over
-//! each period; its zero-order-hold equivalent `(n1 z + n0) / ((z - e1)(z - e2))`
-//! is computed by partial fractions. (When `tau` is within 0.1 % of `L / R` it
-//! is nudged by 0.1 % so the two poles stay distinct.)
+//! ## The sampled plant
+//!
+//! The controller samples at `t = k Ts`; the duty `u[k]` computed from that
+//! sample reaches the bridge `d = D Ts` later (`0 <= D <= 1`) and is held until
+//! `u[k+1]` replaces it. The measured current is the winding `1 / (L s + R)`,
+//! optionally followed by a first-order filter `1 / (tau s + 1)`. Its step
+//! response is `s(t) = a0 + sum_j a_j exp(p_j t)` (partial fractions; `s(0) = 0`),
+//! so the sample `n` periods after a unit pulse of `u[0]` is
+//! `h[n] = s(n Ts - d) - s((n - 1) Ts - d)`, and summing the geometric series
+//! gives, with `e_j = exp(p_j Ts)`,
+//!
+//! ```text
+//! D = 0:  H(z) = sum_j a_j (e_j - 1) / (z - e_j)                      (the zero-order-hold equivalent)
+//! D > 0:  H(z) = [ h1 prod_j (z - e_j) + sum_j q_j prod_(i != j) (z - e_i) ] / (z prod_j (z - e_j))
+//!         h1 = s(Ts - d),  q_j = a_j exp(p_j (2 Ts - d)) (1 - exp(-p_j Ts))
+//! ```
+//!
+//! which is the modified z-transform of the held plant (Franklin, Powell &
+//! Workman, *Digital Control of Dynamic Systems*, the chapter on sampled-data
+//! systems; cited from memory); `D = 1` reduces to `H0(z) / z`, the classic
+//! one-period delay. Differences of exponentials go through `expm1` so that
+//! `f32` keeps its digits when `Ts << L / R`. (When `tau` is within 0.1 % of
+//! `L / R` it is nudged by 0.1 % so the two poles stay distinct.)
+//! `tests/reference/design_reference.py` checks all of it against an
+//! independent exact discretisation of the delayed state-space loop (scipy's
+//! matrix exponential) run through python-control.
 
-use crate::design::discrete::zoh_plant;
 use crate::design::poly::{Complex, MAX_DEGREE, Poly};
+use crate::design::step::{StepMeter, StepMetrics};
 use crate::design::{Gains, Real, RlPlant, Sampling};
 
-/// The open loop of the sampled system: `C(z) z^-d Gm(z)` with
-/// `Gm = num / den`, coefficients highest power first.
+/// The largest plant order handled here: the winding and one filter.
+const MAX_POLES: usize = 2;
+
+/// A sampled plant `num(z) / den(z)`: `den` monic of degree `n` (1 to 3),
+/// `num` of degree below `n`, stored as the `n` coefficients of
+/// `z^(n-1) .. z^0` (leading ones may be zero).
+#[derive(Clone, Copy, Debug, PartialEq)]
+struct Discrete<T> {
+    num: [T; MAX_POLES + 1],
+    den: [T; MAX_POLES + 2],
+    n: usize,
+}
+
+impl<T: Real> Discrete<T> {
+    /// The held, delayed plant with the step response
+    /// `a0 + sum a_j exp(p_j t)`, given as the `(p_j, a_j)` pairs.
+    fn held(poles: &[(T, T)], period_s: T, delay_periods: T) -> Self {
+        let ts = period_s;
+        let d = delay_periods * ts;
+        let mut out = Self {
+            num: [T::ZERO; MAX_POLES + 1],
+            den: [T::ZERO; MAX_POLES + 2],
+            n: 0,
+        };
+        // den = prod (z - e_j), lowest power first while building.
+        let mut den_low = [T::ZERO; MAX_POLES + 2];
+        den_low[0] = T::ONE;
+        let mut deg = 0;
+        for &(p, _) in poles.iter().take(MAX_POLES) {
+            let e = (p * ts).exp();
+            multiply_linear(&mut den_low, deg, e);
+            deg += 1;
+        }
+        let np = deg;
+        // numerator terms, lowest power first.
+        let mut num_low = [T::ZERO; MAX_POLES + 2];
+        let delayed = delay_periods > T::ZERO;
+        for (j, &(p, a)) in poles.iter().take(MAX_POLES).enumerate() {
+            // prod over i != j of (z - e_i)
+            let mut others = [T::ZERO; MAX_POLES + 2];
+            others[0] = T::ONE;
+            let mut od = 0;
+            for (i, &(pi, _)) in poles.iter().take(MAX_POLES).enumerate() {
+                if i != j {
+                    multiply_linear(&mut others, od, (pi * ts).exp());
+                    od += 1;
+                }
+            }
+            let coefficient = if delayed {
+                // q_j = -a_j exp(p_j (2 Ts - d)) expm1(-p_j Ts)
+                -a * (p * (T::of(2.0) * ts - d)).exp() * (-p * ts).exp_m1()
+            } else {
+                a * (p * ts).exp_m1()
+            };
+            for (k, &o) in others.iter().enumerate().take(od + 1) {
+                if let Some(slot) = num_low.get_mut(k) {
+                    *slot = *slot + coefficient * o;
+                }
+            }
+        }
+        let mut n = np;
+        if delayed {
+            // + h1 prod (z - e_j), h1 = s(Ts - d) = sum a_j expm1(p_j (Ts - d)).
+            let h1 = poles
+                .iter()
+                .take(MAX_POLES)
+                .fold(T::ZERO, |acc, &(p, a)| acc + a * (p * (ts - d)).exp_m1());
+            for (k, &c) in den_low.iter().enumerate().take(np + 1) {
+                if let Some(slot) = num_low.get_mut(k) {
+                    *slot = *slot + h1 * c;
+                }
+            }
+            // den times z.
+            den_low.copy_within(0..MAX_POLES + 1, 1);
+            den_low[0] = T::ZERO;
+            n += 1;
+        }
+        out.n = n;
+        // Highest power first: den has n + 1 coefficients, num n.
+        for k in 0..=n.min(MAX_POLES + 1) {
+            if let (Some(dst), Some(&src)) = (out.den.get_mut(k), den_low.get(n - k)) {
+                *dst = src;
+            }
+        }
+        for k in 0..n.min(MAX_POLES + 1) {
+            if let (Some(dst), Some(&src)) = (out.num.get_mut(k), num_low.get(n - 1 - k)) {
+                *dst = src;
+            }
+        }
+        out
+    }
+
+    fn den(&self) -> &[T] {
+        let (used, _) = self.den.split_at((self.n + 1).min(MAX_POLES + 2));
+        used
+    }
+
+    fn num(&self) -> &[T] {
+        let (used, _) = self.num.split_at(self.n.min(MAX_POLES + 1));
+        used
+    }
+
+    fn eval(&self, z: Complex<T>) -> Complex<T> {
+        let horner = |c: &[T]| {
+            c.iter().fold(Complex::real(T::ZERO), |acc, &k| {
+                acc.times(z).plus(Complex::real(k))
+            })
+        };
+        horner(self.num()).over(horner(self.den()))
+    }
+}
+
+/// `p(z) (z - r)` in place, `p` lowest power first of degree `deg`.
+fn multiply_linear<T: Real>(p: &mut [T], deg: usize, r: T) {
+    let mut carry = T::ZERO;
+    for k in 0..=(deg + 1) {
+        if let Some(c) = p.get_mut(k) {
+            let old = *c;
+            *c = carry - r * old;
+            carry = old;
+        }
+    }
+}
+
+/// One step of `den(z) y = num(z) u` as a difference equation, with the
+/// histories `y[k-1..]` and `u[k-1..]` (most recent first).
+fn next_output<T: Real>(plant: &Discrete<T>, y: &[T; 3], u: &[T; 3]) -> T {
+    let mut out = T::ZERO;
+    for (i, (&nk, &dk)) in plant.num().iter().zip(plant.den().iter().skip(1)).enumerate() {
+        if let (Some(&yi), Some(&ui)) = (y.get(i), u.get(i)) {
+            out = out + nk * ui - dk * yi;
+        }
+    }
+    out
+}
+
+fn shift<T: Copy>(h: &mut [T; 3], v: T) {
+    h[2] = h[1];
+    h[1] = h[0];
+    h[0] = v;
+}
+
+/// The open loop of the sampled system, `C(z) H(z)`, with the PI
+/// `C(z) = (k1 z - k0) / (z - 1)` (pi-core's backward-Euler law) and the
+/// measured-current plant `H` above.
 #[derive(Clone, Copy, Debug)]
 pub struct OpenLoop<T> {
-    /// `Kp + Ki Ts` and `Kp`: `C(z) = (k1 z - k0) / (z - 1)`.
+    /// `Kp + Ki Ts` and `Kp`.
     k1: T,
     k0: T,
-    delay: bool,
-    /// Measured-current plant numerator `[n1, n0]` (`n1 = 0` without filter).
-    num: [T; 2],
-    /// Its denominator, monic, up to degree 2: `[1, d1, d0]` or `[1, d1]`.
-    den: [T; 3],
-    den_degree: usize,
-    /// The true-current plant `b / (z - a)`.
-    a: T,
-    b: T,
+    delay_periods: T,
+    /// What the controller sees (winding, delay, filter).
+    measured: Discrete<T>,
+    /// The winding current itself (winding, delay), for the step prediction.
+    true_current: Discrete<T>,
 }
 
 impl<T: Real> OpenLoop<T> {
     /// The open loop for gains on a plant sampled as described.
     pub fn new(plant: &RlPlant<T>, sampling: &Sampling<T>, gains: &Gains<T>) -> Self {
         let ts = sampling.period_s();
-        let (a, b) = zoh_plant(plant, ts);
         let kp = gains.kp_v_per_a;
         let ki_ts = gains.ki_v_per_a_s() * ts;
-        let (num, den, den_degree) = if sampling.filter_tau_s() == T::ZERO {
-            ([T::ZERO, b], [T::ONE, -a, T::ZERO], 1)
+        let r = plant.resistance_ohm();
+        let p1 = -r / plant.inductance_h();
+        // Winding: s(t) = (1 - exp(p1 t)) / R.
+        let winding = [(p1, -T::ONE / r)];
+        let delay = sampling.delay_periods();
+        let true_current = Discrete::held(&winding, ts, delay);
+        let measured = if sampling.filter_tau_s() == T::ZERO {
+            true_current
         } else {
-            let p1 = -plant.resistance_ohm() / plant.inductance_h();
             let mut tau = sampling.filter_tau_s();
             if ((-T::ONE / tau) - p1).abs() < T::of(1e-3) * p1.abs() {
                 tau = tau * T::of(1.001);
             }
             let p2 = -T::ONE / tau;
             let k = T::ONE / (plant.inductance_h() * tau);
-            let a0 = k / (p1 * p2);
             let a1 = k / (p1 * (p1 - p2));
             let a2 = k / (p2 * (p2 - p1));
-            let (e1, e2) = ((p1 * ts).exp(), (p2 * ts).exp());
-            let n1 = -a0 * (e1 + e2) - a1 * (T::ONE + e2) - a2 * (T::ONE + e1);
-            let n0 = a0 * e1 * e2 + a1 * e2 + a2 * e1;
-            ([n1, n0], [T::ONE, -(e1 + e2), e1 * e2], 2)
+            Discrete::held(&[(p1, a1), (p2, a2)], ts, delay)
         };
         Self {
             k1: kp + ki_ts,
             k0: kp,
-            delay: sampling.one_period_delay(),
-            num,
-            den,
-            den_degree,
-            a,
-            b,
+            delay_periods: delay,
+            measured,
+            true_current,
         }
     }
 
@@ -73,76 +229,53 @@ impl<T: Real> OpenLoop<T> {
         self.k0 / self.k1
     }
 
-    /// The measured-current plant `num / den`: numerator `[n1, n0]` (`n1 = 0`
-    /// without a filter) and the monic denominator's coefficients.
-    pub fn plant(&self) -> ([T; 2], &[T]) {
-        (self.num, self.den_used())
+    /// The measured-current plant `num / den`: the numerator's coefficients
+    /// (as many as the denominator's degree, highest power first, leading ones
+    /// possibly zero) and the monic denominator's.
+    pub fn plant(&self) -> (&[T], &[T]) {
+        (self.measured.num(), self.measured.den())
     }
 
-    /// Whether the one-period delay (an open-loop pole at z = 0) is in the loop.
-    pub fn has_delay(&self) -> bool {
-        self.delay
+    /// The sample-to-update delay in the loop, periods.
+    pub fn delay_periods(&self) -> T {
+        self.delay_periods
     }
 
     /// `L(z)` at a point.
     pub fn eval(&self, z: Complex<T>) -> Complex<T> {
         let c = Complex::real(self.k1).times(z).minus(Complex::real(self.k0));
         let c = c.over(z.minus(Complex::real(T::ONE)));
-        let n = Complex::real(self.num[0])
-            .times(z)
-            .plus(Complex::real(self.num[1]));
-        let mut d = Complex::real(T::ONE);
-        for &k in self.den_used().iter().skip(1) {
-            d = d.times(z).plus(Complex::real(k));
-        }
-        let mut l = c.times(n).over(d);
-        if self.delay {
-            l = l.over(z);
-        }
-        l
-    }
-
-    /// The denominator's coefficients in use, `[1, d1]` or `[1, d1, d0]`.
-    fn den_used(&self) -> &[T] {
-        // `den_degree` is 1 or 2 by construction; written so that no bounds
-        // check (and no panic path) is left for firmware builds.
-        let (used, _) = self.den.split_at(self.den_degree.min(2) + 1);
-        used
+        c.times(self.measured.eval(z))
     }
 
     /// The closed loop's characteristic polynomial:
-    /// `(z - 1) z^d den(z) + (k1 z - k0) num(z)`.
+    /// `(z - 1) den(z) + (k1 z - k0) num(z)`.
     pub fn characteristic(&self) -> Option<Poly<T>> {
-        // (z - 1) * den: coefficient k is den[k] - den[k - 1], with den[-1] and
-        // den[dd + 1] taken as zero.
+        let den = self.measured.den();
+        let num = self.measured.num();
+        let n = self.measured.n;
+        // Highest power first, degree n + 1.
         let mut p = [T::ZERO; MAX_DEGREE + 1];
-        let den = self.den_used();
-        let dd = den.len() - 1;
+        // (z - 1) den: coefficient k is den[k] - den[k - 1].
         let mut previous = T::ZERO;
         for (pk, &dk) in p.iter_mut().zip(den) {
             *pk = dk - previous;
             previous = dk;
         }
-        if let Some(pk) = p.get_mut(dd + 1) {
+        if let Some(pk) = p.get_mut(n + 1) {
             *pk = -previous;
         }
-        let mut degree = dd + 1;
-        if self.delay {
-            degree += 1; // times z: one more trailing zero coefficient
-        }
-        // + (k1 z - k0)(n1 z + n0) = k1 n1 z^2 + (k1 n0 - k0 n1) z - k0 n0
-        let q = [
-            self.k1 * self.num[0],
-            self.k1 * self.num[1] - self.k0 * self.num[0],
-            -self.k0 * self.num[1],
-        ];
-        // Added at the powers z^2, z^1, z^0 (degree >= 2 here).
-        for (j, &v) in q.iter().enumerate() {
-            if let Some(pk) = (degree + j).checked_sub(2).and_then(|idx| p.get_mut(idx)) {
-                *pk = *pk + v;
+        // (k1 z - k0) num: num has degree n - 1 (n coefficients), the product
+        // degree n, so it lands on p[1..=n + 1].
+        for (i, &c) in num.iter().enumerate() {
+            if let Some(pk) = p.get_mut(i + 1) {
+                *pk = *pk + self.k1 * c;
+            }
+            if let Some(pk) = p.get_mut(i + 2) {
+                *pk = *pk - self.k0 * c;
             }
         }
-        Poly::new(p.get(..=degree)?)
+        Poly::new(p.get(..=n + 1)?)
     }
 
     /// Closed-loop poles; `len` of them are valid.
@@ -175,6 +308,38 @@ pub struct Margins<T> {
     pub phase_margin_deg: Option<T>,
     /// Gain crossover frequency, hertz.
     pub crossover_hz: Option<T>,
+    /// Modulus margin: the shortest distance from `L(exp(j w Ts))` to `-1` on
+    /// the grid, `1 / max |S|` (1 is the most a loop can have; about 0.5 is
+    /// common practice). It bounds both margins at once: a gain margin of at
+    /// least `1 / (1 - Mm)` and a phase margin of at least `2 asin(Mm / 2)`
+    /// (Astrom & Murray, *Feedback Systems*, the robustness chapter; cited from
+    /// memory).
+    pub modulus_margin: T,
+}
+
+impl<T: Real> Margins<T> {
+    /// The gain margin in decibels, `20 log10(gm)`.
+    pub fn gain_margin_db(&self) -> Option<T> {
+        self.gain_margin.map(|g| T::of(20.0) * g.ln() / T::of(10.0).ln())
+    }
+}
+
+/// A phase continued from the previous point of a sweep: `raw` (radians, as
+/// `atan2` gives it) moved by whole turns to within `(-pi, pi]` of `previous`.
+pub fn unwrap_phase<T: Real>(previous: T, raw: T) -> T {
+    let mut d = raw - previous;
+    let turn = T::of(2.0) * T::PI;
+    // At most a few turns apart for finite inputs; bounded for the device.
+    for _ in 0..64 {
+        if d > T::PI {
+            d = d - turn;
+        } else if d <= -T::PI {
+            d = d + turn;
+        } else {
+            break;
+        }
+    }
+    previous + d
 }
 
 /// Margins from `L(exp(j w Ts))` on `points` frequencies up to and including
@@ -186,6 +351,7 @@ pub fn margins<T: Real>(open: &OpenLoop<T>, period_s: T, points: usize) -> Margi
         gain_margin: None,
         phase_margin_deg: None,
         crossover_hz: None,
+        modulus_margin: T::of(f64::INFINITY),
     };
     let mut prev: Option<(T, T, T)> = None; // (theta, |L|, unwrapped phase)
     for k in 1..=n {
@@ -199,18 +365,9 @@ pub fn margins<T: Real>(open: &OpenLoop<T>, period_s: T, points: usize) -> Margi
         let raw = l.arg();
         let phase = match prev {
             None => raw,
-            Some((_, _, p)) => {
-                // Unwrap: the step from the last point is within (-pi, pi].
-                let mut d = raw - p;
-                while d > T::PI {
-                    d = d - T::of(2.0) * T::PI;
-                }
-                while d <= -T::PI {
-                    d = d + T::of(2.0) * T::PI;
-                }
-                p + d
-            }
+            Some((_, _, p)) => unwrap_phase(p, raw),
         };
+        out.modulus_margin = out.modulus_margin.min(l.plus(Complex::real(T::ONE)).abs());
         if let Some((t0, m0, p0)) = prev {
             if out.phase_margin_deg.is_none() && m0 >= T::ONE && mag < T::ONE {
                 let f = (m0 - T::ONE) / (m0 - mag);
@@ -296,91 +453,39 @@ pub fn largest_stable_period<T: Real>(
     Some(lo)
 }
 
-/// The predicted response to a unit setpoint step, on the true current at the
-/// sampling instants.
-#[derive(Clone, Copy, Debug, PartialEq)]
-pub struct StepPrediction<T> {
-    /// 10-90 % rise time, s (interpolated).
-    pub rise_time_s: Option<T>,
-    /// Overshoot, fraction.
-    pub overshoot: T,
-    /// 2 % settling time, s (last sample outside the band, interpolated).
-    pub settling_time_s: Option<T>,
-    /// Final value of the simulated window.
-    pub final_value: T,
-}
-
 /// Simulates `steps` control periods of the linear loop after a unit step of
 /// the setpoint, without saturation, with the proportional term acting on
 /// `b r - y` (`setpoint_weight` b: 1 is the plain PI; 0 takes the PI zero out
-/// of the setpoint response, as in `pi-core`'s `PiGains::with_setpoint_weight`).
+/// of the setpoint response, as in `pi-core`'s `PiGains::with_setpoint_weight`),
+/// and measures the true winding current at the sampling instants with the one
+/// step-metrics routine ([`crate::design::step`]).
 pub fn predict_step<T: Real>(
     open: &OpenLoop<T>,
     period_s: T,
     steps: usize,
     setpoint_weight: T,
-) -> StepPrediction<T> {
-    let (a, b) = (open.a, open.b);
-    let mut i = T::ZERO; // true current
-    let mut ym = [T::ZERO; 2]; // measured current: y[k], y[k-1]
-    let mut v = [T::ZERO; 2]; // applied volts: v[k], v[k-1]
-    let mut integ = T::ZERO;
-    let mut u_prev = T::ZERO;
-    let filtered = open.den_degree == 2;
+) -> StepMetrics<T> {
     let kp = open.k0;
     let ki_ts = open.k1 - open.k0;
-    let mut rise10: Option<T> = None;
-    let mut rise90: Option<T> = None;
-    let mut peak = T::ZERO;
-    let mut last_out: Option<usize> = None;
-    let mut prev_i = T::ZERO;
+    let mut meter = StepMeter::new();
+    let (mut ym, mut i, mut u) = ([T::ZERO; 3], [T::ZERO; 3], [T::ZERO; 3]);
+    let mut integ = T::ZERO;
     for k in 0..steps {
-        let y = if filtered { ym[0] } else { i };
-        let e = T::ONE - y;
-        integ = integ + ki_ts * e;
-        let u = kp * (setpoint_weight - y) + integ;
-        let applied = if open.delay { u_prev } else { u };
-        u_prev = u;
-        // Record the true current at this instant, then advance one period.
-        let t = T::of(k as f64) * period_s;
-        let cross = |level: T, found: &mut Option<T>| {
-            if found.is_none() && i >= level {
-                let f = if k > 0 && i != prev_i {
-                    (level - prev_i) / (i - prev_i)
-                } else {
-                    T::ONE
-                };
-                *found = Some(t - period_s + f * period_s);
-            }
-        };
-        cross(T::of(0.1), &mut rise10);
-        cross(T::of(0.9), &mut rise90);
-        peak = peak.max(i);
-        if (i - T::ONE).abs() > T::of(0.02) {
-            last_out = Some(k);
-        }
-        prev_i = i;
-        // Measured-current filter: y[k+1] = -d1 y[k] - d0 y[k-1] + n1 v[k] + n0 v[k-1].
-        if filtered {
-            let next =
-                -open.den[1] * ym[0] - open.den[2] * ym[1] + open.num[0] * applied + open.num[1] * v[0];
-            ym = [next, ym[0]];
-        }
-        v = [applied, v[0]];
-        i = a * i + b * applied;
+        let y = next_output(&open.measured, &ym, &u);
+        let current = next_output(&open.true_current, &i, &u);
+        meter.sample(T::of(k as f64) * period_s, current);
+        integ = integ + ki_ts * (T::ONE - y);
+        let out = kp * (setpoint_weight - y) + integ;
+        shift(&mut ym, y);
+        shift(&mut i, current);
+        shift(&mut u, out);
     }
-    let settling_time_s = match last_out {
-        None => Some(T::ZERO),
-        Some(k) if k + 1 >= steps => None,
-        Some(k) => Some(T::of((k + 1) as f64) * period_s),
-    };
-    StepPrediction {
-        rise_time_s: match (rise10, rise90) {
-            (Some(a), Some(b)) => Some(b - a),
-            _ => None,
-        },
-        overshoot: (peak - T::ONE).max(T::ZERO),
-        settling_time_s,
-        final_value: prev_i,
-    }
+    meter.finish().unwrap_or(StepMetrics {
+        rise_time_s: None,
+        overshoot: T::ZERO,
+        peak: T::ZERO,
+        peak_time_s: T::ZERO,
+        settling_time_s: None,
+        last: T::ZERO,
+    })
 }

@@ -1,21 +1,28 @@
 //! Direct design of the sampled loop: the dominant closed-loop poles placed at
 //! `z = exp(s Ts)` of the desired continuous ones `s = -sigma +/- j wd`.
 //!
-//! The loop is the firmware's: the winding held over each period,
-//! `G(z) = b / (z - a)` with `a = exp(-R Ts / L)`, `b = (1 - a) / R` (the
-//! zero-order-hold equivalent; Franklin, Powell & Workman, *Digital Control of
-//! Dynamic Systems*, cited from memory), `pi-core`'s backward-Euler PI
-//! `C(z) = Kp + Ki Ts z / (z - 1)`, and optionally the one-period delay `1 / z`.
-//! Its characteristic polynomial is
+//! The loop is the firmware's: the winding held over each period and applied
+//! `D Ts` after the sample (`0 <= D <= 1`). Over one period the current moves
+//! by `i[k+1] = a i[k] + b0 u[k] + b1 u[k-1]` with `a = exp(-x)`, `x = R Ts / L`,
 //!
 //! ```text
-//! no delay:  z^2 + (b (Kp + Ki Ts) - 1 - a) z + (a - b Kp)
-//! delay:     z^3 - (1 + a) z^2 + (a + b (Kp + Ki Ts)) z - b Kp
+//! b0 = (1 - exp(-(1 - D) x)) / R          (the new duty, for the last 1 - D of the period)
+//! b1 = (exp(-(1 - D) x) - exp(-x)) / R    (the old duty, for the first D)
 //! ```
 //!
-//! Without the delay both poles are placed exactly. With it, matching
-//! `(z^2 - 2 Re(p) z + |p|^2)(z - c)` fixes the third pole at
-//! `c = 1 + a - 2 Re(p)`, which must lie inside the unit circle.
+//! so the plant is `(b0 z + b1) / (z (z - a))` (`b / (z - a)` at `D = 0`, the
+//! zero-order-hold equivalent, and `b / (z (z - a))` at `D = 1`; Franklin,
+//! Powell & Workman, *Digital Control of Dynamic Systems*, cited from memory).
+//! With `pi-core`'s backward-Euler PI `C(z) = (k1 z - k0) / (z - 1)`,
+//! `k1 = Kp + Ki Ts`, `k0 = Kp`, the characteristic polynomial is
+//!
+//! ```text
+//! z^3 + (k1 b0 - 1 - a) z^2 + (a + k1 b1 - k0 b0) z - k0 b1
+//! ```
+//!
+//! Matching it to `(z^2 - 2 Re(p) z + |p|^2)(z - c)` is linear in `k1`, `k0`
+//! and the remaining pole `c`, solved in closed form below; `c` must lie
+//! inside the unit circle. At `D = 0` it gives `c = 0` and the two poles exactly.
 
 use crate::design::{DesignError, Gains, Real, RlPlant, Sampling, Spec};
 
@@ -57,53 +64,71 @@ pub fn design<T: Real>(
     })
 }
 
+/// `(b0, b1)` of the held, delayed winding (module docs).
+pub fn delayed_inputs<T: Real>(plant: &RlPlant<T>, sampling: &Sampling<T>) -> (T, T) {
+    let x = plant.resistance_ohm() * sampling.period_s() / plant.inductance_h();
+    let d = sampling.delay_periods();
+    let late = -(-(T::ONE - d) * x).exp_m1(); // 1 - exp(-(1 - D) x)
+    let early = (-(T::ONE - d) * x).exp() * -(-d * x).exp_m1(); // exp(-(1-D)x) (1 - exp(-D x))
+    (late / plant.resistance_ohm(), early / plant.resistance_ohm())
+}
+
+/// `(k1, k0, c)`: the gains' coefficients and the remaining pole.
+fn place<T: Real>(plant: &RlPlant<T>, sampling: &Sampling<T>, spec: &Spec<T>) -> (T, T, T) {
+    let ts = sampling.period_s();
+    let (a, _) = zoh_plant(plant, ts);
+    let (b0, b1) = delayed_inputs(plant, sampling);
+    let (re, im) = target_pole(spec, ts);
+    let m2 = re * re + im * im;
+    let two_re = T::of(2.0) * re;
+    let alpha = T::ONE + a - two_re;
+    let g = m2 * b0 + two_re * b1;
+    let k1 = (b1 * (m2 - a) + alpha * g) / (b1 * b1 + b0 * g);
+    let c = alpha - k1 * b0;
+    let k0 = if b1.abs() >= b0.abs() {
+        m2 * c / b1
+    } else {
+        (a + k1 * b1 - m2 - two_re * c) / b0
+    };
+    (k1, k0, c)
+}
+
 /// `(Kp, Ki Ts)` for the spec, or the reason the remaining pole is unstable.
 fn solve<T: Real>(
     plant: &RlPlant<T>,
     sampling: &Sampling<T>,
     spec: &Spec<T>,
 ) -> Result<(T, T), DesignError<T>> {
-    let ts = sampling.period_s();
-    let (a, b) = zoh_plant(plant, ts);
-    let (re, im) = target_pole(spec, ts);
-    let m2 = re * re + im * im;
-    if !sampling.one_period_delay() {
-        let kp = (a - m2) / b;
-        return Ok((kp, (T::ONE + a - T::of(2.0) * re) / b - kp));
-    }
-    let c = T::ONE + a - T::of(2.0) * re;
-    if c.abs() >= T::ONE {
+    let (k1, k0, c) = place(plant, sampling, spec);
+    if c.abs() >= T::ONE || !c.is_finite() {
         return Err(DesignError::UnstableRemainder {
             magnitude: c.abs(),
             min_settling_time_s: slowest_needed(plant, sampling, spec),
         });
     }
-    let kp = m2 * c / b;
-    Ok((kp, (m2 + T::of(2.0) * re * c - a) / b - kp))
+    Ok((k0, k1 - k0))
 }
 
-/// The shortest settling time (same overshoot) that keeps the third pole at
-/// `|c| <= 0.9`, by bisection.
+/// The shortest settling time (same overshoot) that keeps the remaining pole
+/// at `|c| <= 0.9`, by bisection.
 fn slowest_needed<T: Real>(plant: &RlPlant<T>, sampling: &Sampling<T>, spec: &Spec<T>) -> T {
-    let ts = sampling.period_s();
-    let (a, _) = zoh_plant(plant, ts);
-    let third = |settling: T| -> T {
-        match Spec::new(settling, spec.overshoot()) {
-            Ok(s) => (T::ONE + a - T::of(2.0) * target_pole(&s, ts).0).abs(),
+    let remainder = |settling: T| -> T {
+        match spec.with_settling_time(settling) {
+            Ok(s) => place(plant, sampling, &s).2.abs(),
             Err(_) => T::of(2.0),
         }
     };
     let mut lo = spec.settling_time_s();
     let mut hi = lo;
     for _ in 0..60 {
-        if third(hi) <= T::of(0.9) {
+        if remainder(hi) <= T::of(0.9) {
             break;
         }
         hi = hi * T::of(2.0);
     }
     for _ in 0..50 {
         let mid = (lo + hi) * T::of(0.5);
-        if third(mid) <= T::of(0.9) {
+        if remainder(mid) <= T::of(0.9) {
             hi = mid;
         } else {
             lo = mid;

@@ -2,9 +2,10 @@
 //!
 //! The plant is the winding `1 / (L s + R)` (back-EMF treated as a slow
 //! disturbance, as usual for a current loop). The firmware samples every `Ts`,
-//! holds the PWM duty for a period (zero-order hold), optionally applies the
-//! duty one period late (the computation delay) and optionally sees the current
-//! through a first-order filter. The methods:
+//! holds the PWM duty for a period (zero-order hold), applies it a fraction of
+//! a period after the sample (the computation delay, 0 to 1 period, modelled
+//! exactly) and optionally sees the current through a first-order filter. The
+//! methods:
 //!
 //! * [`root_locus`]: continuous pole placement from a 2 % settling time and an
 //!   overshoot;
@@ -25,6 +26,7 @@ pub mod discrete;
 pub mod modulus_optimum;
 pub mod poly;
 pub mod root_locus;
+pub mod step;
 
 use core::fmt;
 
@@ -61,27 +63,36 @@ impl<T: Real> RlPlant<T> {
     }
 }
 
-/// How the firmware samples: the control period, whether the duty is applied
-/// one period late (computation delay), and the time constant of a first-order
-/// current filter (0: none).
+/// How the firmware samples: the control period, the delay from the sample to
+/// the moment the new duty reaches the bridge, as a fraction of the period,
+/// and the time constant of a first-order current filter (0: none).
+///
+/// The delay is what the analysis and the direct design model exactly (the
+/// modified z-transform of the held, delayed input): `0` is a duty applied at
+/// the sampling instant, `0.5` a sample at the PWM centre with the duty loaded
+/// at the next period start, `1` the classic one-period computation delay.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct Sampling<T> {
     period_s: T,
-    one_period_delay: bool,
+    delay_periods: T,
     filter_tau_s: T,
 }
 
 impl<T: Real> Sampling<T> {
-    /// A validated sampling description.
-    pub fn new(period_s: T, one_period_delay: bool, filter_tau_s: T) -> Result<Self, DesignError<T>> {
+    /// A validated sampling description: `period_s > 0`, `delay_periods` in
+    /// `[0, 1]`, `filter_tau_s` zero (no filter) or positive.
+    pub fn new(period_s: T, delay_periods: T, filter_tau_s: T) -> Result<Self, DesignError<T>> {
         let filter_tau_s = if filter_tau_s == T::ZERO {
             T::ZERO
         } else {
             positive("filter_tau_s", filter_tau_s)?
         };
+        if !(delay_periods >= T::ZERO && delay_periods <= T::ONE) {
+            return Err(DesignError::DelayOutOfRange { delay_periods });
+        }
         Ok(Self {
             period_s: positive("period_s", period_s)?,
-            one_period_delay,
+            delay_periods,
             filter_tau_s,
         })
     }
@@ -89,9 +100,13 @@ impl<T: Real> Sampling<T> {
     pub fn period_s(&self) -> T {
         self.period_s
     }
-    /// One-period computation delay.
-    pub fn one_period_delay(&self) -> bool {
-        self.one_period_delay
+    /// Sample-to-update delay, in control periods, `[0, 1]`.
+    pub fn delay_periods(&self) -> T {
+        self.delay_periods
+    }
+    /// Sample-to-update delay, s.
+    pub fn delay_s(&self) -> T {
+        self.delay_periods * self.period_s
     }
     /// First-order filter time constant, s (0: none).
     pub fn filter_tau_s(&self) -> T {
@@ -111,30 +126,53 @@ impl<T: Real> Sampling<T> {
         }
     }
 
-    /// The same sampling at another period.
+    /// The same sampling at another period, the delay the same fraction of it.
     pub fn with_period(self, period_s: T) -> Self {
         Self { period_s, ..self }
     }
 }
 
-/// A step-response spec: 2 % settling time (s) and overshoot as a fraction in
-/// `(0, 1)` (0.05 is 5 %).
+/// A step-response spec: a 2 % settling time (s), an overshoot as a fraction
+/// in `[0, 1)` (0.05 is 5 %; 0 asks for none: a critically damped target), and
+/// optionally a 10-90 % rise time (s) that the analysis checks (the placement
+/// does not aim at it).
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct Spec<T> {
     settling_time_s: T,
     overshoot: T,
+    rise_time_s: Option<T>,
 }
+
+/// `wn ts` of a critically damped second-order step entering the 2 % band:
+/// the root of `(1 + x) exp(-x) = 0.02` (bisection in Python; checked in
+/// `step.rs`'s tests).
+pub const CRITICAL_SETTLING_WN_TS: f64 = 5.833_921_701_917_39;
 
 impl<T: Real> Spec<T> {
     /// A validated spec.
     pub fn new(settling_time_s: T, overshoot: T) -> Result<Self, DesignError<T>> {
         let settling_time_s = positive("settling_time_s", settling_time_s)?;
-        if !(overshoot.is_finite() && overshoot > T::ZERO && overshoot < T::ONE) {
+        if !(overshoot.is_finite() && overshoot >= T::ZERO && overshoot < T::ONE) {
             return Err(DesignError::OvershootOutOfRange { overshoot });
         }
         Ok(Self {
             settling_time_s,
             overshoot,
+            rise_time_s: None,
+        })
+    }
+    /// The same spec with a largest 10-90 % rise time, s.
+    pub fn with_rise_time(self, rise_time_s: T) -> Result<Self, DesignError<T>> {
+        Ok(Self {
+            rise_time_s: Some(positive("rise_time_s", rise_time_s)?),
+            ..self
+        })
+    }
+    /// The same spec with another settling time (validated).
+    pub fn with_settling_time(self, settling_time_s: T) -> Result<Self, DesignError<T>> {
+        Ok(Self {
+            settling_time_s: positive("settling_time_s", settling_time_s)?,
+            ..self
         })
     }
     /// 2 % settling time, s.
@@ -145,26 +183,108 @@ impl<T: Real> Spec<T> {
     pub fn overshoot(&self) -> T {
         self.overshoot
     }
+    /// Largest 10-90 % rise time, s, if asked.
+    pub fn rise_time_s(&self) -> Option<T> {
+        self.rise_time_s
+    }
     /// Damping ratio for the overshoot of a second-order system:
     /// `zeta = -ln(Mp) / sqrt(pi^2 + ln^2(Mp))` (Ogata, *Modern Control
-    /// Engineering*, transient-response chapter; cited from memory).
+    /// Engineering*, transient-response chapter; cited from memory); 1 for no
+    /// overshoot.
     pub fn damping(&self) -> T {
+        if self.overshoot == T::ZERO {
+            return T::ONE;
+        }
         let l = self.overshoot.ln();
         -l / (T::PI * T::PI + l * l).sqrt()
     }
-    /// Real part of the dominant poles for the 2 % settling time,
-    /// `sigma = 4 / ts` (Ogata, same chapter: `ts = 4 / (zeta wn)`).
+    /// Real part of the dominant poles for the 2 % settling time: the
+    /// envelope rule `sigma = 4 / ts` (Ogata, same chapter:
+    /// `ts = 4 / (zeta wn)`) when the target overshoots, and for the critically
+    /// damped target (no envelope to speak of) the exact
+    /// `sigma = wn = 5.834 / ts` ([`CRITICAL_SETTLING_WN_TS`]).
     pub fn sigma(&self) -> T {
-        T::of(4.0) / self.settling_time_s
+        if self.overshoot == T::ZERO {
+            T::of(CRITICAL_SETTLING_WN_TS) / self.settling_time_s
+        } else {
+            T::of(4.0) / self.settling_time_s
+        }
     }
     /// Natural frequency `wn = sigma / zeta`, rad/s.
     pub fn natural_frequency(&self) -> T {
         self.sigma() / self.damping()
     }
-    /// Damped frequency `wd = wn sqrt(1 - zeta^2)`, rad/s.
+    /// Damped frequency `wd = wn sqrt(1 - zeta^2)`, rad/s (0 when critically damped).
     pub fn damped_frequency(&self) -> T {
         let z = self.damping();
-        self.natural_frequency() * (T::ONE - z * z).sqrt()
+        self.natural_frequency() * (T::ONE - z * z).max(T::ZERO).sqrt()
+    }
+}
+
+/// The design methods, in the order a survey lists them, each with the
+/// setpoint weight it is meant to run with, so the device and the host design
+/// and dispatch alike.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Method {
+    /// [`discrete`]: the sampled loop's poles placed directly.
+    DirectDiscrete,
+    /// [`root_locus`]: continuous pole placement.
+    RootLocus,
+    /// [`modulus_optimum`]: the lumped small time constant.
+    ModulusOptimum,
+    /// [`cancellation`]: the PI zero on the winding's pole, the bandwidth from
+    /// the settling time.
+    Cancellation,
+}
+
+impl Method {
+    /// Every method, in survey order.
+    pub const ALL: [Method; 4] = [
+        Method::DirectDiscrete,
+        Method::RootLocus,
+        Method::ModulusOptimum,
+        Method::Cancellation,
+    ];
+
+    /// A short name for tables.
+    pub fn name(self) -> &'static str {
+        match self {
+            Method::DirectDiscrete => "direct discrete",
+            Method::RootLocus => "root locus",
+            Method::ModulusOptimum => "modulus optimum",
+            Method::Cancellation => "pole-zero cancellation",
+        }
+    }
+
+    /// The setpoint weight the method is meant to run with: 0 for the pole
+    /// placements (the poles are the response only without the PI zero in the
+    /// setpoint path), 1 for the cancellations (the zero cancels the winding).
+    pub fn setpoint_weight<T: Real>(self) -> T {
+        match self {
+            Method::DirectDiscrete | Method::RootLocus => T::ZERO,
+            Method::ModulusOptimum | Method::Cancellation => T::ONE,
+        }
+    }
+
+    /// The gains for a plant, sampling and spec. The cancellation's bandwidth
+    /// is `ln(50) / (2 pi ts)`, the crossover of a first-order loop that
+    /// settles to 2 % in `ts`; the modulus optimum ignores the spec (its
+    /// response is fixed by the loop's small time constants).
+    pub fn design<T: Real>(
+        self,
+        plant: &RlPlant<T>,
+        sampling: &Sampling<T>,
+        spec: &Spec<T>,
+    ) -> Result<Gains<T>, DesignError<T>> {
+        match self {
+            Method::DirectDiscrete => discrete::design(plant, sampling, spec),
+            Method::RootLocus => root_locus::design(plant, spec),
+            Method::ModulusOptimum => modulus_optimum::design(plant, sampling),
+            Method::Cancellation => cancellation::design(
+                plant,
+                T::of(50f64.ln()) / (T::of(2.0) * T::PI * spec.settling_time_s()),
+            ),
+        }
     }
 }
 
@@ -200,7 +320,7 @@ pub enum DesignError<T> {
         /// Its value.
         value: T,
     },
-    /// The overshoot must be a fraction strictly between 0 and 1.
+    /// The overshoot must be a fraction from 0 up to (not including) 1.
     OvershootOutOfRange {
         /// The value given.
         overshoot: T,
@@ -224,6 +344,11 @@ pub enum DesignError<T> {
     },
     /// The direct discrete method does not handle a current filter yet.
     FilterUnsupported,
+    /// The sample-to-update delay must be between 0 and 1 control period.
+    DelayOutOfRange {
+        /// The value given, in periods.
+        delay_periods: T,
+    },
 }
 
 impl<T: Real> core::error::Error for DesignError<T> {}
@@ -239,7 +364,7 @@ impl<T: Real> fmt::Display for DesignError<T> {
             }
             DesignError::OvershootOutOfRange { overshoot } => write!(
                 f,
-                "overshoot = {overshoot:?} must be a fraction strictly between 0 and 1; give for example 0.05 for 5 %"
+                "overshoot = {overshoot:?} must be a fraction from 0 up to (not including) 1; give for example 0.05 for 5 %, or 0 for none"
             ),
             DesignError::SettlingTooSlow {
                 settling_time_s,
@@ -255,6 +380,10 @@ impl<T: Real> fmt::Display for DesignError<T> {
             } => write!(
                 f,
                 "the sampled loop's third pole would lie at |z| = {magnitude:?}, outside the unit circle; ask for a settling time of {min_settling_time_s:?} s or more, or a shorter control period"
+            ),
+            DesignError::DelayOutOfRange { delay_periods } => write!(
+                f,
+                "a sample-to-update delay of {delay_periods:?} periods is outside what the analysis models; give a delay between 0 and 1 control period"
             ),
             DesignError::FilterUnsupported => write!(
                 f,

@@ -4,7 +4,7 @@
 //! lumped into one time constant
 //!
 //! ```text
-//! T_sigma = Ts (computation delay, if any) + Ts / 2 (PWM hold) + T_filter
+//! T_sigma = D Ts (the sample-to-update delay) + Ts / 2 (PWM hold) + T_filter
 //! ```
 //!
 //! the PI zero cancels the winding's pole (`Ti = L / R`), and `Kp = L / (2 T_sigma)`.
@@ -16,8 +16,7 @@ use crate::design::{DesignError, Gains, Real, RlPlant, Sampling};
 /// The lumped small time constant of a sampling description, s.
 pub fn t_sigma<T: Real>(sampling: &Sampling<T>) -> T {
     let ts = sampling.period_s();
-    let delay = if sampling.one_period_delay() { ts } else { T::ZERO };
-    delay + ts * T::of(0.5) + sampling.filter_tau_s()
+    sampling.delay_s() + ts * T::of(0.5) + sampling.filter_tau_s()
 }
 
 /// Gains by the modulus optimum.
@@ -35,7 +34,7 @@ mod tests {
     #[test]
     fn the_lumped_loop_has_zeta_one_over_root_two_and_4_3_percent_overshoot() {
         let plant = RlPlant::new(1.9, 2.4e-3).unwrap();
-        let sampling = Sampling::new(50e-6, true, 0.0).unwrap();
+        let sampling = Sampling::new(50e-6, 1.0, 0.0).unwrap();
         let g = design(&plant, &sampling).unwrap();
         let t = t_sigma(&sampling);
         // With Ti = L/R the open loop is Kp / (L s (1 + s T)); closed loop:

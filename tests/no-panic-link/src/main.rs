@@ -161,7 +161,7 @@ fn build() -> Option<CurrentLoop> {
 /// New gains designed on the device from a bench command, checked before use.
 fn design_gains() -> Option<PiGains> {
     let plant = RlPlant::new(black_box(1.9f32), black_box(2.4e-3)).ok()?;
-    let sampling = Sampling::new(black_box(50e-6f32), black_box(true), black_box(0.0)).ok()?;
+    let sampling = Sampling::new(black_box(50e-6f32), black_box(1.0), black_box(0.0)).ok()?;
     let spec = Spec::new(black_box(2e-3f32), black_box(0.05)).ok()?;
     let g = discrete::design(&plant, &sampling, &spec).ok()?;
     if !OpenLoop::new(&plant, &sampling, &g).is_stable() {
