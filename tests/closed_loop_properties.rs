@@ -21,11 +21,11 @@
 //! `PROPTEST_CASES` raises the case count (see `tests/support.rs`).
 
 use ampwright_tests::cases;
-use host_sim::bridge::{Bridge, BridgeParams, Modulation};
-use host_sim::faults::{FaultKind, Injection, Injectors};
-use host_sim::motor::{Motor, MotorParams};
-use host_sim::sense_chain::{SenseChain, SenseParams};
-use host_sim::timing::{Timing, TimingParams};
+use host_sim::plant::bridge::{Bridge, BridgeParams, Modulation};
+use host_sim::plant::faults::{FaultKind, Injection, Injectors};
+use host_sim::plant::motor::{Motor, MotorParams};
+use host_sim::plant::sense_chain::{SenseChain, SenseParams};
+use host_sim::plant::timing::{Timing, TimingParams};
 use host_sim::{DriveChain, Event, Runner, TracePoint};
 use pi_core::{
     BusWindow, Command, CurrentLoop, DutyMapping, Fault, LoopConfig, OutputLimits, OvercurrentLimit,

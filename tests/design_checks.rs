@@ -7,11 +7,11 @@
 //! and the f32 device path stays within 0.5 % of f64 on every method.
 
 use ampwright_tests::cases;
-use host_sim::bridge::{Bridge, BridgeParams};
-use host_sim::faults::Injectors;
-use host_sim::motor::{Motor, MotorParams};
-use host_sim::sense_chain::{SenseChain, SenseParams};
-use host_sim::timing::{Timing, TimingParams};
+use host_sim::plant::bridge::{Bridge, BridgeParams};
+use host_sim::plant::faults::Injectors;
+use host_sim::plant::motor::{Motor, MotorParams};
+use host_sim::plant::sense_chain::{SenseChain, SenseParams};
+use host_sim::plant::timing::{Timing, TimingParams};
 use host_sim::{DriveChain, Event, LinearPi, Runner};
 use pi_core::design::analysis::{self, OpenLoop};
 use pi_core::design::poly::Complex;
@@ -472,7 +472,7 @@ fn designed_gains_hold_up_in_the_full_nonlinear_simulation() {
     );
     let predicted = host_sim::design_report::design(&s).unwrap();
     let chosen = predicted.chosen().unwrap();
-    let (_, report) = host_sim::report::run(&s, &mut |_| {}).unwrap();
+    let (_, report) = host_sim::results::report::run(&s, &mut |_| {}).unwrap();
     for step in &report.steps {
         println!(
             "measured {:.2} % {:?} s, predicted {:.2} % {:?} s",

@@ -23,7 +23,7 @@ fn golden_dir() -> PathBuf {
 
 fn run(name: &str) -> String {
     let s = Scenario::load(&golden_dir().join(format!("{name}.toml"))).unwrap();
-    let (trace, _) = host_sim::report::run(&s, &mut |_| {}).unwrap();
+    let (trace, _) = host_sim::results::report::run(&s, &mut |_| {}).unwrap();
     let mut out = Vec::new();
     trace.write_csv(&mut out).unwrap();
     String::from_utf8(out).unwrap()
@@ -68,7 +68,7 @@ fn traces_match_the_golden_files() {
 fn golden_runs_show_what_they_are_for() {
     // The sensor short trips on the first shorted reading, with the bridge off.
     let csv = run("sensor-short");
-    let header: Vec<&str> = host_sim::trace::CSV_HEADER.split(',').collect();
+    let header: Vec<&str> = host_sim::sim::trace::CSV_HEADER.split(',').collect();
     let col = |name: &str| header.iter().position(|h| *h == name).unwrap();
     let rows: Vec<Vec<&str>> = csv.lines().skip(1).map(|l| l.split(',').collect()).collect();
     let first_faulted = rows.iter().position(|r| r[col("state")] == "2").unwrap();

@@ -20,7 +20,7 @@
 //! written here, with no anti-windup, must fail the same criterion, which shows the
 //! test can tell the difference.
 
-use host_sim::motor::{Motor, MotorDrive, MotorParams};
+use host_sim::plant::motor::{Motor, MotorDrive, MotorParams};
 
 /// The winding as a pure RL load (rotor held), with a series source voltage.
 struct RlLoad(Motor);

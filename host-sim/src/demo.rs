@@ -21,13 +21,13 @@ use pi_core::{
     TripClass,
 };
 
-use crate::bridge::{Bridge, BridgeParams};
-use crate::faults::Injectors;
-use crate::motor::{Motor, MotorParams};
-use crate::runner::{DriveChain, Runner};
+use crate::plant::bridge::{Bridge, BridgeParams};
+use crate::plant::faults::Injectors;
+use crate::plant::motor::{Motor, MotorParams};
+use crate::plant::sense_chain::{SenseChain, SenseParams};
+use crate::plant::timing::{Timing, TimingParams};
 use crate::scenario::{Scenario, ScenarioError};
-use crate::sense_chain::{SenseChain, SenseParams};
-use crate::timing::{Timing, TimingParams};
+use crate::sim::runner::{DriveChain, Runner};
 
 /// The demo scenario file, as shipped in `host-sim/scenarios/carousel_step.toml`.
 pub const SCENARIO_TOML: &str = include_str!("../scenarios/carousel_step.toml");

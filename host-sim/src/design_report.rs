@@ -21,13 +21,13 @@ use pi_core::design::{
 };
 use serde::Serialize;
 
-use crate::bridge::BridgeParams;
-use crate::metrics::Spec as MetricSpec;
 use crate::model_error::ModelError;
-use crate::motor::MotorParams;
+use crate::plant::bridge::BridgeParams;
+use crate::plant::motor::MotorParams;
+use crate::plant::sense_chain::{SenseFilter, SenseParams};
+use crate::plant::timing::Timing;
+use crate::results::metrics::Spec as MetricSpec;
 use crate::scenario::{Scenario, ScenarioError};
-use crate::sense_chain::{SenseFilter, SenseParams};
-use crate::timing::Timing;
 
 /// Fewer control periods than this per rise time is too coarse (common practice).
 pub const MIN_PERIODS_PER_RISE: f64 = 10.0;

@@ -40,25 +40,17 @@
 //! Model parameters that are out of range are refused with a [`ModelError`]
 //! naming the field.
 
-pub mod bridge;
 pub mod cli;
 pub mod demo;
 pub mod design_report;
-pub mod faults;
-pub mod linear;
-pub mod metrics;
 pub mod model_error;
-pub mod motor;
-pub mod noise;
+pub mod plant;
 pub mod plot;
-pub mod report;
-pub mod runner;
+pub mod results;
 pub mod scenario;
-pub mod sense_chain;
-pub mod timing;
-pub mod trace;
+pub mod sim;
 
 pub use model_error::ModelError;
-pub use runner::{Controller, DriveChain, Event, LinearPi, Runner};
 pub use scenario::{Scenario, ScenarioError};
-pub use trace::{Trace, TracePoint};
+pub use sim::runner::{Controller, DriveChain, Event, LinearPi, Runner};
+pub use sim::trace::{Trace, TracePoint};

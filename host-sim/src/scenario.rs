@@ -22,14 +22,14 @@ use pi_core::{
 };
 use serde::Deserialize;
 
-use crate::bridge::{Bridge, BridgeParams, Decay, Modulation, SwitchDrop};
-use crate::faults::{FaultKind, Injection, Injectors};
-use crate::metrics::Spec;
 use crate::model_error::ModelError;
-use crate::motor::{Motor, MotorParams, WindingThermal};
-use crate::runner::{DriveChain, Event, Runner};
-use crate::sense_chain::{SenseChain, SenseFilter, SenseParams};
-use crate::timing::{Timing, TimingParams};
+use crate::plant::bridge::{Bridge, BridgeParams, Decay, Modulation, SwitchDrop};
+use crate::plant::faults::{FaultKind, Injection, Injectors};
+use crate::plant::motor::{Motor, MotorParams, WindingThermal};
+use crate::plant::sense_chain::{SenseChain, SenseFilter, SenseParams};
+use crate::plant::timing::{Timing, TimingParams};
+use crate::results::metrics::Spec;
+use crate::sim::runner::{DriveChain, Event, Runner};
 
 /// Why a scenario could not be used.
 #[derive(Debug)]

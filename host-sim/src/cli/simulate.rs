@@ -5,7 +5,7 @@ use std::io::Write;
 use crate::cli::SimulateArgs;
 use crate::cli::progress::Progress;
 use crate::plot::step_response_svg;
-use crate::report;
+use crate::results::report;
 use crate::scenario::Scenario;
 
 /// Runs the command; returns the exit code.
@@ -72,7 +72,7 @@ pub fn run(args: &SimulateArgs) -> i32 {
 fn write_files(
     args: &SimulateArgs,
     scenario: &Scenario,
-    trace: &crate::trace::Trace,
+    trace: &crate::sim::trace::Trace,
     rep: &report::Report,
 ) -> Result<Vec<String>, String> {
     let dir = &args.out;

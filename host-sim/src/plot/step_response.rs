@@ -3,9 +3,9 @@
 //! each step, the spec's rise and settling deadlines, the duty limits, and the
 //! overcurrent threshold when it is in view.
 
-use crate::metrics::{SETTLING_BAND, Spec, StepMetrics};
 use crate::plot::svg::{Axis, Canvas, padded};
-use crate::trace::Trace;
+use crate::results::metrics::{SETTLING_BAND, Spec, StepMetrics};
+use crate::sim::trace::Trace;
 
 // Colours chosen for this project: current dark blue, request grey, setpoint
 // teal, duty orange, bands green, limits red.
@@ -116,7 +116,7 @@ pub fn step_response_svg(trace: &Trace, plot: &StepPlot) -> String {
 
     // Data, thinned to at most about two points per pixel column.
     let stride = (pts.len() / ((right - left) as usize * 2)).max(1);
-    let series = |f: &dyn Fn(&crate::trace::TracePoint) -> f64, axis: &Axis| -> Vec<(f64, f64)> {
+    let series = |f: &dyn Fn(&crate::sim::trace::TracePoint) -> f64, axis: &Axis| -> Vec<(f64, f64)> {
         pts.iter()
             .step_by(stride)
             .filter(|p| f(p).is_finite())

@@ -25,7 +25,7 @@
 //! final value of the response (or the system's DC gain) as reference and reports
 //! sample times without interpolation.
 
-use crate::trace::TracePoint;
+use crate::sim::trace::TracePoint;
 
 /// Settling band, fraction of the step.
 pub const SETTLING_BAND: f64 = 0.02;

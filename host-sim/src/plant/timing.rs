@@ -11,7 +11,7 @@
 //! overruns a period boundary slips the update by one more PWM period.
 
 use crate::model_error::ModelError;
-use crate::noise::Gaussian;
+use crate::plant::noise::Gaussian;
 
 /// The longest computation delay accepted, in control periods.
 pub const MAX_DELAY_PERIODS: f64 = 16.0;

@@ -6,11 +6,11 @@ use std::fmt::Write;
 use pi_core::{FaultSet, LoopConfig, Protection};
 use serde::Serialize;
 
-use crate::bridge::Modulation;
-use crate::metrics::{self, Check, StepMetrics};
+use crate::plant::bridge::Modulation;
 use crate::plot::StepPlot;
+use crate::results::metrics::{self, Check, StepMetrics};
 use crate::scenario::{Scenario, ScenarioError};
-use crate::trace::Trace;
+use crate::sim::trace::Trace;
 
 /// Steps smaller than this are not measured, amperes.
 pub const MIN_STEP_A: f64 = 1e-3;

@@ -14,7 +14,7 @@
 //!
 //! Between two events (a PWM edge, a sampling instant) the terminal voltage and the
 //! load torque are constant, so the linear part `x = [i, w]` is advanced with its
-//! exact discretisation ([`crate::linear`]); the step therefore carries no
+//! exact discretisation ([`crate::plant::linear`]); the step therefore carries no
 //! integration error of its own, and an RL step matches `V/R (1 - exp(-t R/L))`
 //! to rounding. Two parts are not linear and are handled at event boundaries:
 //!
@@ -29,8 +29,8 @@
 //! A locked rotor (a held shaft, or the locked-rotor fault) keeps `w = 0` and
 //! leaves the pure RL circuit.
 
-use crate::linear::Discrete;
 use crate::model_error::ModelError;
+use crate::plant::linear::Discrete;
 
 /// Temperature coefficient of resistance of annealed copper at 20 C, 1/K:
 /// 0.00393 (the International Annealed Copper Standard, IEC 60028; value cited

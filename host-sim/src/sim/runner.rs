@@ -5,7 +5,7 @@
 //!
 //! 1. applies the fault injectors for that moment (supply level, held rotor,
 //!    extra load torque);
-//! 2. loads the drive command whose time has come (see [`crate::timing`]);
+//! 2. loads the drive command whose time has come (see [`crate::plant::timing`]);
 //! 3. asks the bridge for the period's intervals and steps the motor through them
 //!    (switching mode), or through their mean voltage (averaged mode), stopping at
 //!    the sampling instant when a control tick falls in this period;
@@ -23,12 +23,12 @@ use std::collections::VecDeque;
 
 use pi_core::{Command, CurrentLoop, DriveCommand, DutyMapping, LoopState, PiController, TickInput};
 
-use crate::bridge::{Bridge, BridgeState, Modulation, Pattern};
-use crate::faults::Injectors;
-use crate::motor::{Motor, MotorDrive};
-use crate::sense_chain::SenseChain;
-use crate::timing::Timing;
-use crate::trace::{EdgePoint, LogEntry, Trace, TracePoint};
+use crate::plant::bridge::{Bridge, BridgeState, Modulation, Pattern};
+use crate::plant::faults::Injectors;
+use crate::plant::motor::{Motor, MotorDrive};
+use crate::plant::sense_chain::SenseChain;
+use crate::plant::timing::Timing;
+use crate::sim::trace::{EdgePoint, LogEntry, Trace, TracePoint};
 
 /// What the controller is given at a sampling instant.
 #[derive(Clone, Copy, Debug, PartialEq)]

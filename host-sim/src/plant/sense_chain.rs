@@ -22,9 +22,9 @@
 
 use pi_core::{ConfigError, CurrentSense};
 
-use crate::linear::Discrete;
 use crate::model_error::ModelError;
-use crate::noise::Gaussian;
+use crate::plant::linear::Discrete;
+use crate::plant::noise::Gaussian;
 
 /// The anti-aliasing filter.
 #[derive(Clone, Copy, Debug, PartialEq)]

@@ -1,0 +1,7 @@
+//! Running the real controller against the plant: [`runner`] steps the blocks
+//! PWM period by PWM period and calls the controller (`pi_core::CurrentLoop`,
+//! the firmware's own code) at each sampling instant; [`trace`] is what a run
+//! leaves.
+
+pub mod runner;
+pub mod trace;
