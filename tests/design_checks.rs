@@ -435,56 +435,76 @@ fn design_command_on_the_demo_writes_gains_json_and_both_pictures() {
 }
 
 #[test]
-fn an_infeasible_spec_exits_2() {
+fn a_spec_no_method_meets_strictly_exits_1_and_names_the_nearest_feasible_one() {
     let dir = ampwright_tests::temp_dir("design-bad");
     let scenario =
         std::path::PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("../host-sim/scenarios/carousel_step.toml");
     let s = scenario.to_str().unwrap();
     let out = dir.to_str().unwrap();
-    for extra in [["--settling-time-s", "0.2e-3"], ["--overshoot-pct", "150"]] {
-        let args = ["ampwright", "design", s, "--out", out, extra[0], extra[1]];
-        assert_eq!(host_sim::cli::main(args.map(Into::into)), 2, "{extra:?}");
-    }
+    let args = [
+        "ampwright",
+        "design",
+        s,
+        "--out",
+        out,
+        "--settling-time-s",
+        "0.2e-3",
+    ];
+    assert_eq!(host_sim::cli::main(args.map(Into::into)), 1);
     // The reason names the nearest feasible spec.
-    let mut sc = host_sim::Scenario::load(&scenario).unwrap();
-    sc.spec.settling_time_s = Some(0.2e-3);
-    let why = host_sim::design_report::design(&sc).unwrap_err().to_string();
-    assert!(why.contains("nearest feasible spec is"), "{why}");
+    let params = host_sim::scenario::Params::load(&scenario).unwrap();
+    let overrides = host_sim::prepare::Overrides {
+        settling_time_s: Some(0.2e-3),
+        ..Default::default()
+    };
+    let report = host_sim::prepare::design(&params, &overrides).unwrap();
+    assert!(report.chosen().is_none());
+    let why = report.infeasible();
+    assert!(why.contains("nearest feasible settling time"), "{why}");
+    // An overshoot outside [0, 100) is bad input, named by its option.
+    let args = ["ampwright", "design", s, "--out", out, "--overshoot-pct", "150"];
+    assert_eq!(host_sim::cli::main(args.map(Into::into)), 2);
+    let e = host_sim::prepare::design(
+        &params,
+        &host_sim::prepare::Overrides {
+            overshoot_pct: Some(150.0),
+            ..Default::default()
+        },
+    )
+    .unwrap_err()
+    .to_string();
+    assert!(e.starts_with("--overshoot-pct = 150 must be from 0 up to"), "{e}");
 }
 
 #[test]
-fn designed_gains_hold_up_in_the_full_nonlinear_simulation() {
+fn designed_gains_meet_the_demo_spec_in_the_full_nonlinear_simulation() {
     // The demo scenario without its gains: simulate designs them from [spec]
-    // (2 ms, 5 %) and runs the real loop on the switching bridge, the moving
-    // rotor, the noisy sensor. The measured steps stay near the prediction.
+    // and runs the real loop on the switching bridge, the moving rotor, the
+    // noisy sensor, with the design's own setpoint weight. Every measured step
+    // meets the spec. The demo's 4 A steps need more than the bus gives (the
+    // design warns), so a measured step is slower than the linear prediction,
+    // never faster.
     let text: String = host_sim::demo::SCENARIO_TOML
         .lines()
-        .filter(|l| {
-            !(l.starts_with("kp_v_per_a") || l.starts_with("ti_s") || l.starts_with("setpoint_weight"))
-        })
+        .filter(|l| !(l.starts_with("kp_v_per_a") || l.starts_with("ti_s")))
         .collect::<Vec<_>>()
         .join("\n");
-    let s = host_sim::Scenario::parse(&text, "designed").unwrap();
-    assert!(
-        s.design_note
-            .as_deref()
-            .is_some_and(|n| n.contains("designed from the spec"))
-    );
-    let predicted = host_sim::design_report::design(&s).unwrap();
-    let chosen = predicted.chosen().unwrap();
-    let (_, report) = host_sim::results::report::run(&s, &mut |_| {}).unwrap();
+    let params = host_sim::scenario::Params::from_toml(&text, "designed").unwrap();
+    let prepared = host_sim::prepare::prepare(params).unwrap();
+    let designed = prepared.designed.clone().unwrap();
+    assert!(!designed.weight_from_scenario);
+    let (_, report) =
+        host_sim::results::report::run(&prepared.scenario, Some(&designed), &mut |_| {}).unwrap();
+    assert!(report.table().contains("the design's prediction"));
+    let p = designed.predicted;
     for step in &report.steps {
         println!(
-            "measured {:.2} % {:?} s, predicted {:.2} % {:?} s",
-            step.overshoot_pct,
-            step.settling_time_s,
-            chosen.discrete_overshoot.unwrap() * 100.0,
-            chosen.discrete_settling_s
+            "{}: measured {:.2} % {:?} s, predicted {:.2} % {:?} s",
+            designed.method, step.overshoot_pct, step.settling_time_s, p.overshoot_pct, p.settling_time_s
         );
-        assert!(step.overshoot_pct <= 5.0 + 1.0);
         let ts = step.settling_time_s.unwrap();
-        assert!(
-            (ts - chosen.discrete_settling_s.unwrap()).abs() <= 0.15 * chosen.discrete_settling_s.unwrap()
-        );
+        let predicted = p.settling_time_s.unwrap();
+        assert!(ts >= 0.9 * predicted, "{ts} vs {predicted}");
     }
+    assert_eq!(report.pass, Some(true), "{}", report.table());
 }

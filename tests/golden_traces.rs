@@ -23,7 +23,7 @@ fn golden_dir() -> PathBuf {
 
 fn run(name: &str) -> String {
     let s = Scenario::load(&golden_dir().join(format!("{name}.toml"))).unwrap();
-    let (trace, _) = host_sim::results::report::run(&s, &mut |_| {}).unwrap();
+    let (trace, _) = host_sim::results::report::run(&s, None, &mut |_| {}).unwrap();
     let mut out = Vec::new();
     trace.write_csv(&mut out).unwrap();
     String::from_utf8(out).unwrap()

@@ -25,7 +25,7 @@ fn error_of(text: &str) -> String {
 #[test]
 fn demo_scenario_parses_and_meets_its_spec() {
     let s = demo::scenario().unwrap();
-    let (_, report) = host_sim::results::report::run(&s, &mut |_| {}).unwrap();
+    let (_, report) = host_sim::results::report::run(&s, None, &mut |_| {}).unwrap();
     assert_eq!(report.steps.len(), 2);
     assert_eq!(report.pass, Some(true), "{}", report.table());
     assert!(report.first_fault.is_none());
@@ -49,7 +49,7 @@ fn every_shipped_scenario_is_valid() {
 fn readme_shows_the_demo_table_as_it_is() {
     let readme = include_str!("../README.md");
     let s = demo::scenario().unwrap();
-    let (_, report) = host_sim::results::report::run(&s, &mut |_| {}).unwrap();
+    let (_, report) = host_sim::results::report::run(&s, None, &mut |_| {}).unwrap();
     let table = report.table();
     let rows: Vec<&str> = table
         .lines()
@@ -222,7 +222,7 @@ proptest! {
         let text = format!("{}{}{}", &demo::SCENARIO_TOML[..start], value, &demo::SCENARIO_TOML[end..]);
         if let Ok(mut s) = Scenario::parse(&text, "t") {
             s.duration_s = s.duration_s.min(2e-3);
-            let (trace, _) = host_sim::results::report::run(&s, &mut |_| {}).unwrap();
+            let (trace, _) = host_sim::results::report::run(&s, None, &mut |_| {}).unwrap();
             for p in &trace.points {
                 prop_assert!(p.current_a.is_finite() && p.duty.is_finite(), "{key}{value}: {p:?}");
             }
@@ -233,7 +233,7 @@ proptest! {
 #[test]
 fn the_demo_scenario_has_every_protection_that_applies_on() {
     let s = demo::scenario().unwrap();
-    let (_, report) = host_sim::results::report::run(&s, &mut |_| {}).unwrap();
+    let (_, report) = host_sim::results::report::run(&s, None, &mut |_| {}).unwrap();
     let on: Vec<&str> = report
         .protections
         .iter()
@@ -275,7 +275,7 @@ fn a_protection_that_is_off_is_said_with_the_fields_that_turn_it_on() {
         .collect::<Vec<_>>()
         .join("\n");
     let s = Scenario::parse(&text, "t").unwrap();
-    let (_, report) = host_sim::results::report::run(&s, &mut |_| {}).unwrap();
+    let (_, report) = host_sim::results::report::run(&s, None, &mut |_| {}).unwrap();
     let table = report.table();
     let warnings: Vec<&str> = table.lines().filter(|l| l.starts_with("warning:")).collect();
     assert_eq!(warnings.len(), 2, "{table}");
@@ -307,7 +307,7 @@ fn speed_feedforward_without_a_speed_limit_names_the_field() {
     assert!(e.contains("controller.protection.max_speed_rad_s"), "{e}");
     let ok = text.replacen("# max_speed_rad_s = 1500.0", "max_speed_rad_s = 1500.0", 1);
     let s = Scenario::parse(&ok, "t").unwrap();
-    let (_, report) = host_sim::results::report::run(&s, &mut |_| {}).unwrap();
+    let (_, report) = host_sim::results::report::run(&s, None, &mut |_| {}).unwrap();
     assert!(
         report.table().contains("on  speed plausibility"),
         "{}",

@@ -42,13 +42,14 @@
 
 pub mod cli;
 pub mod demo;
-pub mod design_report;
 pub mod model_error;
 pub mod plant;
 pub mod plot;
+pub mod prepare;
 pub mod results;
 pub mod scenario;
 pub mod sim;
+pub mod tuning;
 
 pub use model_error::ModelError;
 pub use scenario::{Scenario, ScenarioError};

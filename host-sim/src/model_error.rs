@@ -15,11 +15,12 @@ pub struct ModelError {
 
 impl fmt::Display for ModelError {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        write!(
-            f,
-            "{} = {} must be {}; change it in the scenario",
-            self.field, self.value, self.needs
-        )
+        let fix = if self.field.starts_with("--") {
+            "change the option"
+        } else {
+            "change it in the scenario"
+        };
+        write!(f, "{} = {} must be {}; {fix}", self.field, self.value, self.needs)
     }
 }
 

@@ -1,75 +1,106 @@
-//! `ampwright design <scenario>`.
+//! `ampwright design <scenario>`: parse, call the design, print, write.
 
-use pi_core::design::Spec;
-use pi_core::design::analysis::{self, OpenLoop};
-use pi_core::design::discrete::target_pole;
+use std::io::Write;
+use std::path::PathBuf;
 
-use crate::cli::DesignArgs;
-use crate::design_report::{self, DesignFailure};
 use crate::plot::{frequency_response_svg, root_locus_svg};
-use crate::scenario::Scenario;
+use crate::prepare::{self, Overrides};
+use crate::scenario::Params;
+use crate::tuning::DesignReport;
 
-/// Runs the command; returns the exit code.
-pub fn run(args: &DesignArgs) -> i32 {
-    let mut scenario = match Scenario::load(&args.scenario) {
-        Ok(s) => s,
-        Err(e) => {
-            eprintln!("ampwright: {e}");
-            return 2;
-        }
-    };
-    if let Some(ts) = args.settling_time_s {
-        scenario.spec.settling_time_s = Some(ts);
-    }
-    if let Some(os) = args.overshoot_pct {
-        scenario.spec.overshoot_pct = Some(os);
-    }
-    let report = match design_report::basis(&scenario).and_then(|mut b| {
-        let set = |slot: &mut f64, v: Option<f64>| {
-            if let Some(v) = v {
-                *slot = v;
-            }
-        };
-        set(&mut b.resistance_ohm, args.resistance_ohm);
-        set(&mut b.inductance_h, args.inductance_h);
-        set(&mut b.period_s, args.control_period_s);
-        set(&mut b.filter_tau_s, args.filter_tau_s);
-        set(&mut b.supply_v, args.supply_v);
-        if let Some(d) = args.delay {
-            b.delay_periods = if d { 1.0 } else { 0.0 };
-        }
-        design_report::design_basis(&scenario.name, b)
-    }) {
-        Ok(r) => r,
-        Err(DesignFailure::Infeasible(why)) => {
-            eprintln!("ampwright: {why}");
-            return 2;
-        }
-        Err(e) => {
-            eprintln!("ampwright: {e}");
-            return 2;
-        }
-    };
-    match write_files(args, &report) {
-        Ok(written) => {
-            if args.json {
-                println!("{}", report.json());
-            } else {
-                print!("{}", report.table());
-                for w in written {
-                    println!("wrote {w}");
-                }
-            }
-            0
-        }
-        Err(e) => {
-            eprintln!("ampwright: {e}");
-            2
+/// Arguments of `ampwright design`.
+#[derive(Debug, clap::Args)]
+pub struct DesignArgs {
+    /// The scenario (TOML) with a `[spec]` section.
+    pub scenario: PathBuf,
+    /// Replace the spec's 2 % settling time, s (`spec.settling_time_s`).
+    #[arg(long, allow_negative_numbers = true)]
+    pub settling_time_s: Option<f64>,
+    /// Replace the spec's overshoot, percent, 0 up to 100 (`spec.overshoot_pct`).
+    #[arg(long, allow_negative_numbers = true)]
+    pub overshoot_pct: Option<f64>,
+    /// Replace the spec's 10-90 % rise time, s (`spec.rise_time_s`).
+    #[arg(long, allow_negative_numbers = true)]
+    pub rise_time_s: Option<f64>,
+    /// Replace the winding resistance, ohm (`motor.resistance_ohm`).
+    #[arg(long, allow_negative_numbers = true)]
+    pub resistance_ohm: Option<f64>,
+    /// Replace the winding inductance, H (`motor.inductance_h`).
+    #[arg(long, allow_negative_numbers = true)]
+    pub inductance_h: Option<f64>,
+    /// Replace the control period, s (`timing.control_period_s`); the
+    /// sample-to-update delay is worked out again from the timing.
+    #[arg(long, allow_negative_numbers = true)]
+    pub control_period_s: Option<f64>,
+    /// Model this sample-to-update delay, in control periods from 0 to 1,
+    /// instead of the one the scenario's timing gives.
+    #[arg(long, allow_negative_numbers = true)]
+    pub delay_periods: Option<f64>,
+    /// Replace the current filter's cutoff, Hz (`sense.filter.cutoff_hz`; an RC
+    /// filter if the scenario has none).
+    #[arg(long, allow_negative_numbers = true)]
+    pub filter_cutoff_hz: Option<f64>,
+    /// Replace the supply voltage, V (`bridge.supply_v`).
+    #[arg(long, allow_negative_numbers = true)]
+    pub supply_v: Option<f64>,
+    /// Folder for the output files (created if missing).
+    #[arg(long, default_value = "ampwright-out")]
+    pub out: PathBuf,
+    /// Print the report as JSON instead of the table.
+    #[arg(long)]
+    pub json: bool,
+}
+
+impl DesignArgs {
+    fn overrides(&self) -> Overrides {
+        Overrides {
+            settling_time_s: self.settling_time_s,
+            overshoot_pct: self.overshoot_pct,
+            rise_time_s: self.rise_time_s,
+            resistance_ohm: self.resistance_ohm,
+            inductance_h: self.inductance_h,
+            control_period_s: self.control_period_s,
+            supply_v: self.supply_v,
+            filter_cutoff_hz: self.filter_cutoff_hz,
+            delay_periods: self.delay_periods,
         }
     }
 }
 
-fn write_files(args: &DesignArgs, report: &design_report::DesignReport) -> Result<Vec<String>, String> {
+/// Runs the command; returns the exit code: 0 a method meets the spec, 1 none
+/// meets it strictly (the table says what each misses and the nearest
+/// feasible spec), 2 bad input or an output that could not be written.
+pub fn run(args: &DesignArgs) -> i32 {
+    let report = match Params::load(&args.scenario).and_then(|p| prepare::design(&p, &args.overrides())) {
+        Ok(r) => r,
+        Err(e) => {
+            eprintln!("ampwright: {e}");
+            return 2;
+        }
+    };
+    let written = match write_files(args, &report) {
+        Ok(w) => w,
+        Err(e) => {
+            eprintln!("ampwright: {e}");
+            return 2;
+        }
+    };
+    let mut out = std::io::stdout().lock();
+    let text = if args.json {
+        report.json()
+    } else {
+        let mut t = report.table();
+        for w in &written {
+            t.push_str(&format!("wrote {w}\n"));
+        }
+        t
+    };
+    // A closed pipe (`| head`) is not an error worth a message.
+    let _ = writeln!(out, "{}", text.trim_end());
+    if report.chosen().is_some() { 0 } else { 1 }
+}
+
+fn write_files(args: &DesignArgs, report: &DesignReport) -> Result<Vec<String>, String> {
     let dir = &args.out;
     super::create_out_dir(dir)?;
     let stem = super::file_stem(&report.name);
@@ -84,31 +115,24 @@ fn write_files(args: &DesignArgs, report: &design_report::DesignReport) -> Resul
         put(format!("{stem}-gains.rs"), snippet)?;
     }
     put(format!("{stem}-design.json"), report.json() + "\n")?;
-    if let Some((plant, sampling, gains)) = report.chosen_open_loop() {
-        let b = &report.basis;
-        let desired = Spec::new(b.settling_time_s, b.overshoot)
-            .ok()
-            .map(|s| target_pole(&s, b.period_s));
-        let method = report.chosen().map_or("", |m| m.method);
+    if let (Some(l), Some(m)) = (report.survey.chosen_loop(), report.chosen()) {
         put(
             format!("{stem}-root-locus.svg"),
             root_locus_svg(
-                &format!("{}: root locus in z ({method})", report.name),
-                &plant,
-                &sampling,
-                &gains,
-                desired,
+                &format!("{}: root locus in z ({})", report.name, m.method),
+                &l.plant,
+                &l.sampling,
+                &l.gains,
+                Some(l.target),
             ),
         )?;
-        let open = OpenLoop::new(&plant, &sampling, &gains);
-        let m = analysis::margins(&open, b.period_s, design_report::GRID_POINTS);
         put(
             format!("{stem}-frequency-response.svg"),
             frequency_response_svg(
-                &format!("{}: open-loop frequency response ({method})", report.name),
-                &open,
-                b.period_s,
-                &m,
+                &format!("{}: open-loop frequency response ({})", report.name, m.method),
+                &l.open,
+                report.survey.basis.period_s,
+                &l.margins,
             ),
         )?;
     }

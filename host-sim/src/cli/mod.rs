@@ -1,16 +1,19 @@
 //! The `ampwright` command: argument parsing and dispatch, one file per command.
 //! Commands only parse, call the library and print.
 //!
-//! Exit codes: 0 done (and the spec, if any, met); 1 the run finished but a spec
-//! criterion failed; 2 bad input (arguments, scenario), a spec no design can
-//! meet, or an output that could not be written.
+//! Exit codes: 0 done (and the spec, if any, met); 1 the spec is missed (a run
+//! finished but a step missed a limit, or no design method meets the spec
+//! strictly); 2 bad input (arguments, scenario, a scenario without gains whose
+//! spec no design meets) or an output that could not be written.
 
 pub mod design;
 pub mod progress;
 pub mod simulate;
 
 use std::ffi::OsString;
-use std::path::PathBuf;
+
+pub use design::DesignArgs;
+pub use simulate::SimulateArgs;
 
 use clap::{Parser, Subcommand};
 
@@ -34,63 +37,6 @@ pub enum CommandArgs {
     /// every method, analyse each on the sampled loop, and write the chosen
     /// gains as Rust constants and JSON, a root locus and a frequency response.
     Design(DesignArgs),
-}
-
-/// Arguments of `ampwright design`.
-#[derive(Debug, clap::Args)]
-pub struct DesignArgs {
-    /// The scenario (TOML) with a `[spec]` section.
-    pub scenario: PathBuf,
-    /// Replace the spec's 2 % settling time, seconds.
-    #[arg(long)]
-    pub settling_time_s: Option<f64>,
-    /// Replace the spec's overshoot, percent.
-    #[arg(long)]
-    pub overshoot_pct: Option<f64>,
-    /// Replace the winding resistance, ohm.
-    #[arg(long)]
-    pub resistance_ohm: Option<f64>,
-    /// Replace the winding inductance, H.
-    #[arg(long)]
-    pub inductance_h: Option<f64>,
-    /// Replace the control period, s.
-    #[arg(long)]
-    pub control_period_s: Option<f64>,
-    /// Model the one-period computation delay or not (true/false), instead of
-    /// deriving it from the scenario's timing.
-    #[arg(long)]
-    pub delay: Option<bool>,
-    /// Replace the current filter's time constant, s (0: none).
-    #[arg(long)]
-    pub filter_tau_s: Option<f64>,
-    /// Replace the supply voltage, V.
-    #[arg(long)]
-    pub supply_v: Option<f64>,
-    /// Folder for the output files (created if missing).
-    #[arg(long, default_value = "ampwright-out")]
-    pub out: PathBuf,
-    /// Print the report as JSON instead of the table.
-    #[arg(long)]
-    pub json: bool,
-}
-
-/// Arguments of `ampwright simulate`.
-#[derive(Debug, clap::Args)]
-pub struct SimulateArgs {
-    /// The scenario (TOML); start from host-sim/scenarios/carousel_step.toml.
-    pub scenario: PathBuf,
-    /// Folder for the CSV and SVG files (created if missing).
-    #[arg(long, default_value = "ampwright-out")]
-    pub out: PathBuf,
-    /// Print the report as JSON instead of the table.
-    #[arg(long)]
-    pub json: bool,
-    /// Also write the current at every PWM edge (switching bridge only) as CSV.
-    #[arg(long)]
-    pub edges: bool,
-    /// No progress bar.
-    #[arg(long)]
-    pub quiet: bool,
 }
 
 /// A file name from a scenario name: letters, digits, `-` and `_` kept.

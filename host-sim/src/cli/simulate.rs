@@ -1,27 +1,50 @@
-//! `ampwright simulate <scenario>`.
+//! `ampwright simulate <scenario>`: parse, prepare (designing gains a scenario
+//! leaves out), run, print, write.
 
 use std::io::Write;
+use std::path::PathBuf;
 
-use crate::cli::SimulateArgs;
 use crate::cli::progress::Progress;
 use crate::plot::step_response_svg;
+use crate::prepare;
 use crate::results::report;
 use crate::scenario::Scenario;
 
-/// Runs the command; returns the exit code.
+/// Arguments of `ampwright simulate`.
+#[derive(Debug, clap::Args)]
+pub struct SimulateArgs {
+    /// The scenario (TOML); start from host-sim/scenarios/carousel_step.toml.
+    pub scenario: PathBuf,
+    /// Folder for the CSV and SVG files (created if missing).
+    #[arg(long, default_value = "ampwright-out")]
+    pub out: PathBuf,
+    /// Print the report as JSON instead of the table.
+    #[arg(long)]
+    pub json: bool,
+    /// Also write the current at every PWM edge (switching bridge only) as CSV.
+    #[arg(long)]
+    pub edges: bool,
+    /// No progress bar.
+    #[arg(long)]
+    pub quiet: bool,
+}
+
+/// Runs the command; returns the exit code: 0 done (and the spec met), 1 a
+/// spec limit missed, 2 bad input or an output that could not be written.
 pub fn run(args: &SimulateArgs) -> i32 {
-    let scenario = match Scenario::load(&args.scenario) {
-        Ok(s) => s,
+    let prepared = match prepare::load(&args.scenario) {
+        Ok(p) => p,
         Err(e) => {
             eprintln!("ampwright: {e}");
             return 2;
         }
     };
+    let scenario = &prepared.scenario;
     let mut bar = Progress::new(
         &format!("simulating {}", scenario.name),
         !args.quiet && !args.json,
     );
-    let result = report::run(&scenario, &mut |f| bar.update(f));
+    let result = report::run(scenario, prepared.designed.as_ref(), &mut |f| bar.update(f));
     bar.finish();
     let (mut trace, rep) = match result {
         Ok(r) => r,
@@ -44,7 +67,7 @@ pub fn run(args: &SimulateArgs) -> i32 {
             }
         }
     }
-    let written = match write_files(args, &scenario, &trace, &rep) {
+    let written = match write_files(args, scenario, &trace, &rep) {
         Ok(w) => w,
         Err(e) => {
             eprintln!("ampwright: {e}");

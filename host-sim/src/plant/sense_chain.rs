@@ -46,6 +46,19 @@ pub enum SenseFilter {
     },
 }
 
+impl SenseFilter {
+    /// The filter as one first-order lag, seconds: `1 / (2 pi fc)` for the RC,
+    /// `1 / (Q w0)` (its group delay at low frequency) for the second order, 0
+    /// for none. What the design lumps into the loop.
+    pub fn lag_s(&self) -> f64 {
+        match *self {
+            SenseFilter::None => 0.0,
+            SenseFilter::Rc { cutoff_hz } => 1.0 / (2.0 * std::f64::consts::PI * cutoff_hz),
+            SenseFilter::SecondOrder { cutoff_hz, q } => 1.0 / (q * 2.0 * std::f64::consts::PI * cutoff_hz),
+        }
+    }
+}
+
 /// Sense chain parameters, SI units.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct SenseParams {
@@ -104,9 +117,10 @@ impl SenseChain {
     pub fn new(params: SenseParams) -> Result<Self, ModelError> {
         ModelError::positive("sense.shunt_ohm", params.shunt_ohm)?;
         ModelError::positive("sense.amplifier_gain", params.amplifier_gain)?;
-        ModelError::finite("sense.amplifier_offset_v", params.amplifier_offset_v)?;
         ModelError::finite("sense.offset_error_v", params.offset_error_v)?;
-        ModelError::positive("sense.adc_reference_v", params.adc_reference_v)?;
+        let vref = ModelError::positive("sense.adc_reference_v", params.adc_reference_v)?;
+        // The zero-current level must be a reading the ADC can make.
+        ModelError::within("sense.amplifier_offset_v", params.amplifier_offset_v, 0.0, vref)?;
         ModelError::non_negative("sense.noise_rms_v", params.noise_rms_v)?;
         if !(8..=16).contains(&params.adc_bits) {
             return Err(ModelError::new(

@@ -121,13 +121,25 @@ impl Timing {
         if self.params.jitter_rms_s > 0.0 {
             delay += self.params.jitter_rms_s * self.jitter.sample();
         }
+        sample_period.saturating_add(self.periods_to_load(delay))
+    }
+
+    /// PWM periods from the start of the sample's period to the one that loads
+    /// a duty ready `delay_s` after the sample.
+    fn periods_to_load(&self, delay_s: f64) -> u64 {
         // Jitter draws beyond the accepted delay are cut there.
         let limit = MAX_DELAY_PERIODS * self.control_period_s();
-        let ready = self.sample_offset_s() + delay.clamp(0.0, limit);
+        let ready = self.sample_offset_s() + delay_s.clamp(0.0, limit);
         // The first period start strictly after `ready` (measured from the sample
         // period's start), with a guard of a part per billion against rounding.
-        let after = (ready / self.pwm_period_s * (1.0 + 1e-9)).floor() as u64 + 1;
-        sample_period.saturating_add(after)
+        (ready / self.pwm_period_s * (1.0 + 1e-9)).floor() as u64 + 1
+    }
+
+    /// The nominal time from the sample to the new duty reaching the bridge,
+    /// seconds (no jitter): what the design models as the loop's delay.
+    pub fn sample_to_update_s(&self) -> f64 {
+        self.periods_to_load(self.params.computation_delay_s) as f64 * self.pwm_period_s
+            - self.sample_offset_s()
     }
 
     /// The parameters.

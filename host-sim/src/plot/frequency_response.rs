@@ -100,9 +100,8 @@ pub fn frequency_response_svg(title: &str, open: &OpenLoop<f64>, period_s: f64, 
             MARK,
         );
     }
-    match m.gain_margin {
-        Some(gm) => {
-            let db = 20.0 * gm.log10();
+    match m.gain_margin_db() {
+        Some(db) => {
             c.text(
                 right - 4.0,
                 ym.px(0.0) - 8.0,

@@ -2,33 +2,24 @@
 //!
 //! Each setpoint step in a run (a change of the requested current) is measured
 //! on the true winding current at the sampling instants, from the time of the
-//! request until the next request or the end of the run. With `y0` the request
-//! before the step, `y1` the one after and `c(t) = (i(t) - y0) / (y1 - y0)`:
+//! request until the next request or the end of the run. Rise, overshoot, peak
+//! and settling come from pi-core's one step-metrics routine
+//! ([`pi_core::design::step`], where the definitions and their sources are),
+//! the same one the design's prediction uses; each limit is judged by its one
+//! rule, [`pi_core::design::step::within`] (strict). Two measures are the
+//! simulator's own:
 //!
 //! | metric | definition |
 //! |---|---|
-//! | rise time | time from `c = 0.1` to `c = 0.9`, first crossings, interpolated linearly between samples |
-//! | overshoot | `max(c) - 1`, in percent, 0 if the response never passes 1 |
-//! | peak | the largest excursion of `i` in the step's direction, and its time after the request |
-//! | settling time | time after the request from which `c` stays within `1 +/- 0.02` |
-//! | steady-state error | `y1` minus the mean of `i` over the last 10 % of the window |
+//! | steady-state error | the request `y1` minus the mean of `i` over the last 10 % of the window |
 //! | IAE | integral of `|y1 - i|` over the window (rectangle rule on the samples), A s |
-//!
-//! These are the textbook definitions of Ogata, *Modern Control Engineering*
-//! (the chapter on transient-response analysis, chapter cited from memory), with
-//! two choices of ours made explicit: Ogata allows a 0-100 % rise time for
-//! underdamped systems, we always use 10-90 %; and overshoot and the settling band
-//! are taken relative to the requested value `y1` rather than to the final value
-//! of the response. With integral action the two coincide; a steady-state error
-//! therefore shows in its own column instead of shifting the others.
-//! python-control's `step_info` uses 10-90 % and a 2 % band as well, but takes the
-//! final value of the response (or the system's DC gain) as reference and reports
-//! sample times without interpolation.
+
+use pi_core::design::step::{self, StepMeter};
 
 use crate::sim::trace::TracePoint;
 
-/// Settling band, fraction of the step.
-pub const SETTLING_BAND: f64 = 0.02;
+/// Settling band, fraction of the step (pi-core's).
+pub const SETTLING_BAND: f64 = step::SETTLING_BAND;
 
 /// The metrics of one step.
 #[derive(Clone, Copy, Debug, PartialEq, serde::Serialize)]
@@ -82,53 +73,11 @@ pub fn measure(window: &[TracePoint], y0: f64, y1: f64) -> Option<StepMetrics> {
     let first = window.first()?;
     let t0 = first.t_s;
     let dy = y1 - y0;
-    let c = |p: &TracePoint| (p.current_a - y0) / dy;
-    let cross = |level: f64| -> Option<f64> {
-        let mut prev: Option<&TracePoint> = None;
-        for p in window {
-            if c(p) >= level {
-                return Some(match prev {
-                    Some(q) if c(q) < level => {
-                        let f = (level - c(q)) / (c(p) - c(q));
-                        q.t_s + f * (p.t_s - q.t_s)
-                    }
-                    _ => p.t_s,
-                });
-            }
-            prev = Some(p);
-        }
-        None
-    };
-    let rise_time_s = match (cross(0.1), cross(0.9)) {
-        (Some(a), Some(b)) => Some(b - a),
-        _ => None,
-    };
-    let (peak_idx, peak_c) =
-        window
-            .iter()
-            .enumerate()
-            .map(|(j, p)| (j, c(p)))
-            .fold(
-                (0, f64::NEG_INFINITY),
-                |best, x| if x.1 > best.1 { x } else { best },
-            );
-    let overshoot_pct = ((peak_c - 1.0) * 100.0).max(0.0);
-    let outside = window.iter().rposition(|p| (c(p) - 1.0).abs() > SETTLING_BAND);
-    let settling_time_s = match outside {
-        None => Some(0.0),
-        Some(j) if j + 1 >= window.len() => None,
-        Some(j) => {
-            // Interpolate the last entry into the band between samples j and j + 1.
-            let (q, p) = (&window[j], &window[j + 1]);
-            let (eq, ep) = ((c(q) - 1.0).abs(), (c(p) - 1.0).abs());
-            let f = if eq > ep {
-                (eq - SETTLING_BAND) / (eq - ep)
-            } else {
-                1.0
-            };
-            Some(q.t_s + f * (p.t_s - q.t_s) - t0)
-        }
-    };
+    let mut meter = StepMeter::new();
+    for p in window {
+        meter.sample(p.t_s - t0, (p.current_a - y0) / dy);
+    }
+    let m = meter.finish()?;
     let tail_start = window.len() - (window.len() / 10).max(1);
     let tail = &window[tail_start..];
     let tail_mean = tail.iter().map(|p| p.current_a).sum::<f64>() / tail.len() as f64;
@@ -142,14 +91,36 @@ pub fn measure(window: &[TracePoint], y0: f64, y1: f64) -> Option<StepMetrics> {
         at_s: t0,
         from_a: y0,
         to_a: y1,
-        rise_time_s,
-        overshoot_pct,
-        peak_a: window[peak_idx].current_a,
-        peak_time_s: window[peak_idx].t_s - t0,
-        settling_time_s,
+        rise_time_s: m.rise_time_s,
+        overshoot_pct: m.overshoot * 100.0,
+        peak_a: y0 + m.peak * dy,
+        peak_time_s: m.peak_time_s,
+        settling_time_s: m.settling_time_s,
         steady_state_error_a: y1 - tail_mean,
         iae_a_s,
     })
+}
+
+/// A step predicted by the design's linear analysis of the sampled loop (no
+/// saturation), for a unit request.
+#[derive(Clone, Copy, Debug, PartialEq, serde::Serialize)]
+pub struct PredictedStep {
+    /// 10-90 % rise time, s.
+    pub rise_time_s: Option<f64>,
+    /// Overshoot, percent.
+    pub overshoot_pct: f64,
+    /// 2 % settling time, s.
+    pub settling_time_s: Option<f64>,
+}
+
+impl From<step::StepMetrics<f64>> for PredictedStep {
+    fn from(m: step::StepMetrics<f64>) -> Self {
+        Self {
+            rise_time_s: m.rise_time_s,
+            overshoot_pct: m.overshoot * 100.0,
+            settling_time_s: m.settling_time_s,
+        }
+    }
 }
 
 /// Limits a step response should meet; each one is optional.
@@ -205,7 +176,7 @@ pub fn verdict(steps: &[StepMetrics], spec: &Spec) -> Vec<Check> {
                 measured,
                 limit,
                 margin,
-                pass: margin.is_some_and(|m| m >= 0.0),
+                pass: step::within(measured, limit),
             });
         }
     }

@@ -8,6 +8,7 @@ use serde::Serialize;
 
 use crate::plant::bridge::Modulation;
 use crate::plot::StepPlot;
+use crate::prepare::Designed;
 use crate::results::metrics::{self, Check, StepMetrics};
 use crate::scenario::{Scenario, ScenarioError};
 use crate::sim::trace::Trace;
@@ -52,6 +53,9 @@ pub struct Report {
     pub max_winding_c: f64,
     /// Each protection of the firmware's loop: on with its setting, or off.
     pub protections: Vec<ProtectionLine>,
+    /// How the gains were designed, when the scenario left them out, with the
+    /// step the design predicts (to set beside the measured ones).
+    pub designed: Option<Designed>,
 }
 
 /// One protection of the loop as configured by the scenario.
@@ -141,17 +145,22 @@ pub fn protections(config: &LoopConfig, speed_feedback: bool) -> Vec<ProtectionL
         .collect()
 }
 
-/// Runs a scenario with the real `pi-core` loop; `progress` gets the fraction done.
-pub fn run(scenario: &Scenario, progress: &mut dyn FnMut(f64)) -> Result<(Trace, Report), ScenarioError> {
+/// Runs a scenario with the real `pi-core` loop; `progress` gets the fraction
+/// done; `designed` says how its gains were designed, if they were.
+pub fn run(
+    scenario: &Scenario,
+    designed: Option<&Designed>,
+    progress: &mut dyn FnMut(f64),
+) -> Result<(Trace, Report), ScenarioError> {
     let (mut cl, mut runner) = scenario.start()?;
     runner.run(&mut cl, scenario.duration_s, progress);
     let trace = runner.into_trace();
-    let report = summarise(scenario, &trace);
+    let report = summarise(scenario, designed, &trace);
     Ok((trace, report))
 }
 
 /// The report of a finished run.
-pub fn summarise(scenario: &Scenario, trace: &Trace) -> Report {
+pub fn summarise(scenario: &Scenario, designed: Option<&Designed>, trace: &Trace) -> Report {
     // A thinned trace cannot time a step; measure only full-rate traces.
     let thinned = scenario.record_every_ticks > 1;
     let steps = if thinned {
@@ -192,7 +201,6 @@ pub fn summarise(scenario: &Scenario, trace: &Trace) -> Report {
             .log
             .iter()
             .map(|e| (e.t_s, e.text.clone()))
-            .chain(scenario.design_note.clone().map(|n| (0.0, n)))
             .chain(thinned.then(|| {
                 (
                     0.0,
@@ -211,6 +219,7 @@ pub fn summarise(scenario: &Scenario, trace: &Trace) -> Report {
             .map(|p| p.winding_c)
             .fold(f64::NEG_INFINITY, f64::max),
         protections: protections(&scenario.loop_config, scenario.chain.speed_feedback),
+        designed: designed.cloned(),
     }
 }
 
@@ -280,6 +289,33 @@ impl Report {
         }
         if self.steps.is_empty() {
             let _ = writeln!(s, "   (no setpoint step in this run)");
+        }
+        if let Some(d) = &self.designed {
+            let p = &d.predicted;
+            let _ = writeln!(
+                s,
+                "{:>4} {:>8} {:>7} {:>7} {:>8} {:>8.2}% {:>9}   (the design's prediction: linear, unsaturated)",
+                "pred",
+                "",
+                "",
+                "",
+                ms(p.rise_time_s),
+                p.overshoot_pct,
+                ms(p.settling_time_s),
+            );
+            let _ = writeln!(
+                s,
+                "gains designed from the spec by the {} method: Kp = {:.4} V/A, Ti = {:.4} ms, b = {}{}",
+                d.method,
+                d.kp_v_per_a,
+                d.ti_s * 1e3,
+                d.setpoint_weight,
+                if d.weight_from_scenario {
+                    " (the scenario's setpoint_weight, not the method's)"
+                } else {
+                    ""
+                }
+            );
         }
         if !self.checks.is_empty() {
             let _ = writeln!(s, "\nspec");

@@ -453,6 +453,24 @@ pub fn largest_stable_period<T: Real>(
     Some(lo)
 }
 
+/// The lag of the current behind its request while the rotor accelerates, as
+/// a fraction of the current: the back-EMF is a ramp disturbance at the plant
+/// input, rising at `ramp i` volts per second (see
+/// [`RlPlant::with_rotor`]), and a PI loop follows a ramp disturbance with the
+/// steady error `ramp i / Ki` (the final-value theorem on
+/// `E(s) = G(s) / (1 + C(s) G(s)) ramp / s^2` with `C(s) ~ Ki / s`; Ogata,
+/// *Modern Control Engineering*, the steady-state-error chapter; cited from
+/// memory). 0 for a held rotor or a plain R-L load. If it exceeds the 2 %
+/// settling band, a step does not settle until the rotor stops accelerating.
+pub fn back_emf_lag<T: Real>(plant: &RlPlant<T>, gains: &Gains<T>) -> T {
+    let ki = gains.ki_v_per_a_s();
+    if ki > T::ZERO {
+        plant.back_emf_ramp_v_per_a_s() / ki
+    } else {
+        T::of(f64::INFINITY)
+    }
+}
+
 /// Simulates `steps` control periods of the linear loop after a unit step of
 /// the setpoint, without saturation, with the proportional term acting on
 /// `b r - y` (`setpoint_weight` b: 1 is the plain PI; 0 takes the PI zero out

@@ -34,20 +34,50 @@ use crate::error::ConfigError;
 pub use crate::num::Real;
 use crate::pi::PiGains;
 
-/// The winding: `R` (ohm) and `L` (H), both finite and positive.
+/// The winding: `R` (ohm) and `L` (H), both finite and positive; for a motor
+/// whose rotor turns, optionally how fast its back-EMF rises while the current
+/// accelerates it.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct RlPlant<T> {
     resistance_ohm: T,
     inductance_h: T,
+    back_emf_ramp: T,
 }
 
 impl<T: Real> RlPlant<T> {
-    /// A validated plant.
+    /// A validated plant (a held rotor, a solenoid, any R-L load).
     pub fn new(resistance_ohm: T, inductance_h: T) -> Result<Self, DesignError<T>> {
         Ok(Self {
             resistance_ohm: positive("resistance_ohm", resistance_ohm)?,
             inductance_h: positive("inductance_h", inductance_h)?,
+            back_emf_ramp: T::ZERO,
         })
+    }
+
+    /// The same winding on a free rotor: back-EMF constant `Ke` (V s/rad),
+    /// torque constant `Kt` (N m/A) and inertia `J` (kg m^2). A current `i`
+    /// accelerates the rotor at `Kt i / J`, so the back-EMF, a disturbance the
+    /// PI must follow, rises at `Ke Kt i / J` volts per second (friction only
+    /// slows it: this is the worst case).
+    pub fn with_rotor(
+        self,
+        back_emf_v_s_per_rad: T,
+        torque_n_m_per_a: T,
+        inertia_kg_m2: T,
+    ) -> Result<Self, DesignError<T>> {
+        let ke = non_negative("back_emf_v_s_per_rad", back_emf_v_s_per_rad)?;
+        let kt = non_negative("torque_n_m_per_a", torque_n_m_per_a)?;
+        let j = positive("inertia_kg_m2", inertia_kg_m2)?;
+        Ok(Self {
+            back_emf_ramp: ke * kt / j,
+            ..self
+        })
+    }
+
+    /// How fast the back-EMF rises per ampere while the rotor accelerates,
+    /// V/(A s) (`Ke Kt / J`; 0 for a held rotor or a plain R-L load).
+    pub fn back_emf_ramp_v_per_a_s(&self) -> T {
+        self.back_emf_ramp
     }
     /// `R`, ohm.
     pub fn resistance_ohm(&self) -> T {
@@ -266,10 +296,15 @@ impl Method {
         }
     }
 
-    /// The gains for a plant, sampling and spec. The cancellation's bandwidth
-    /// is `ln(50) / (2 pi ts)`, the crossover of a first-order loop that
-    /// settles to 2 % in `ts`; the modulus optimum ignores the spec (its
-    /// response is fixed by the loop's small time constants).
+    /// The gains for a plant, sampling and spec. The cancellation's crossover
+    /// `wc` is the slowest at which its first-order loop meets the spec's
+    /// times: with the back-EMF lag `lag = ramp / (R wc)` (its `Ki` is `R wc`;
+    /// see [`analysis::back_emf_lag`]) the response to a step is
+    /// `c(t) = (1 - lag)(1 - exp(-wc t))`, so it settles to 2 % when
+    /// `wc ts = ln((1 - lag) / (0.02 - lag))` and rises 10-90 % in
+    /// `wc tr = ln((0.9 - lag) / (0.1 - lag))`: `ln(50)` and `ln(9)` for a
+    /// held rotor. The modulus optimum ignores the spec (its response is fixed
+    /// by the loop's small time constants).
     pub fn design<T: Real>(
         self,
         plant: &RlPlant<T>,
@@ -280,10 +315,14 @@ impl Method {
             Method::DirectDiscrete => discrete::design(plant, sampling, spec),
             Method::RootLocus => root_locus::design(plant, spec),
             Method::ModulusOptimum => modulus_optimum::design(plant, sampling),
-            Method::Cancellation => cancellation::design(
-                plant,
-                T::of(50f64.ln()) / (T::of(2.0) * T::PI * spec.settling_time_s()),
-            ),
+            Method::Cancellation => {
+                let band = T::of(step::SETTLING_BAND);
+                let settle = slowest_crossover(plant, spec.settling_time_s(), T::ONE, band);
+                let rise = spec
+                    .rise_time_s()
+                    .map_or(T::ZERO, |tr| slowest_crossover(plant, tr, T::of(0.9), T::of(0.1)));
+                cancellation::design(plant, settle.max(rise) / (T::of(2.0) * T::PI))
+            }
         }
     }
 }
@@ -390,6 +429,48 @@ impl<T: Real> fmt::Display for DesignError<T> {
                 "direct discrete design does not handle a current filter yet; design without it and check with the analysis"
             ),
         }
+    }
+}
+
+/// The smallest crossover `wc` (rad/s) of a cancellation loop with
+/// `wc t >= ln((a - lag) / (b - lag))`, `lag = ramp / (R wc)`: a bisection of a
+/// condition that only gets easier as `wc` grows, bounded for the device.
+fn slowest_crossover<T: Real>(plant: &RlPlant<T>, t: T, a: T, b: T) -> T {
+    let ramp_per_r = plant.back_emf_ramp_v_per_a_s() / plant.resistance_ohm();
+    let ok = |wc: T| {
+        let lag = ramp_per_r / wc;
+        lag < b && wc * t >= ((a - lag) / (b - lag)).ln()
+    };
+    // Without a rotor the condition is exact at `ln(a / b) / t`.
+    let mut lo = (a / b).ln() / t;
+    if ramp_per_r == T::ZERO || !lo.is_finite() {
+        return lo;
+    }
+    lo = lo.max(ramp_per_r / b);
+    let mut hi = lo * T::of(2.0);
+    for _ in 0..60 {
+        if ok(hi) {
+            break;
+        }
+        lo = hi;
+        hi = hi * T::of(2.0);
+    }
+    for _ in 0..60 {
+        let mid = (lo + hi) * T::of(0.5);
+        if ok(mid) {
+            hi = mid;
+        } else {
+            lo = mid;
+        }
+    }
+    hi
+}
+
+fn non_negative<T: Real>(field: &'static str, value: T) -> Result<T, DesignError<T>> {
+    if value.is_finite() && value >= T::ZERO {
+        Ok(value)
+    } else {
+        Err(DesignError::NotPositive { field, value })
     }
 }
 

@@ -1,0 +1,125 @@
+//! The scenario: a motor or R-L load, a board, a controller, what happens and
+//! when. A scenario is TOML; every quantity is in SI units and its unit is in
+//! its name (`_ohm`, `_h`, `_v`, `_a`, `_s`, `_hz`, `_n_m`, `_kg_m2`, `_c` for
+//! degrees Celsius, `_pct` for percent). Unknown fields are refused, and so are
+//! values out of range: the error names the field and what it needs, in one
+//! sentence. The annotated example is `host-sim/scenarios/carousel_step.toml`.
+//!
+//! * [`file`] (private): the TOML shapes.
+//! * [`params`]: [`Params`], the validated parameter set with optional gains:
+//!   what overrides, sweeps and identification change.
+//! * [`build`]: params to blocks and the firmware's `LoopConfig` ([`Scenario`]);
+//!   never designs.
+//! * [`names`] (private): the one map from pi-core field names to the paths
+//!   and units the user wrote.
+//!
+//! This module never imports `tuning/`; [`crate::prepare`] joins the two.
+
+pub mod build;
+mod file;
+mod names;
+pub mod params;
+
+use std::path::Path;
+
+use pi_core::LoopConfig;
+
+pub use params::Params;
+
+use crate::model_error::ModelError;
+use crate::plant::timing::Timing;
+use crate::results::metrics::Spec;
+use crate::sim::runner::{DriveChain, Event};
+
+/// Why a scenario could not be used.
+#[derive(Debug)]
+pub enum ScenarioError {
+    /// The file could not be read.
+    Io {
+        /// The path.
+        path: String,
+        /// Why.
+        error: std::io::Error,
+    },
+    /// Not valid TOML, or a field that is unknown, missing or of the wrong type.
+    Syntax {
+        /// Line, 1-based.
+        line: usize,
+        /// Column, 1-based.
+        column: usize,
+        /// The parser's message.
+        message: String,
+    },
+    /// A value out of range.
+    Invalid(ModelError),
+}
+
+impl std::fmt::Display for ScenarioError {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self {
+            ScenarioError::Io { path, error } => {
+                write!(f, "cannot read the scenario {path}: {error}; check the path")
+            }
+            ScenarioError::Syntax {
+                line,
+                column,
+                message,
+            } => write!(
+                f,
+                "scenario line {line}, column {column}: {}; see host-sim/scenarios/carousel_step.toml for the fields",
+                message.trim_end_matches('\n').replace('\n', " ")
+            ),
+            ScenarioError::Invalid(e) => write!(f, "{e}"),
+        }
+    }
+}
+
+impl std::error::Error for ScenarioError {}
+
+/// A validated scenario, ready to run any number of times.
+#[derive(Clone, Debug)]
+pub struct Scenario {
+    /// Its name.
+    pub name: String,
+    /// Free text from the file.
+    pub description: String,
+    /// Length of the run, seconds.
+    pub duration_s: f64,
+    /// One trace point in this many ticks.
+    pub record_every_ticks: u64,
+    /// The plant.
+    pub chain: DriveChain,
+    /// The firmware's timing.
+    pub timing: Timing,
+    /// The firmware's loop configuration.
+    pub loop_config: LoopConfig,
+    /// Commands from the main loop.
+    pub events: Vec<Event>,
+    /// What the steps should meet.
+    pub spec: Spec,
+    /// The overcurrent threshold, amperes (for plots).
+    pub overcurrent_a: f64,
+    /// The largest duty (for plots).
+    pub max_duty: f64,
+    /// The largest setpoint magnitude, amperes (for the design's headroom check).
+    pub setpoint_max_a: f64,
+}
+
+impl From<ModelError> for ScenarioError {
+    fn from(e: ModelError) -> Self {
+        ScenarioError::Invalid(e)
+    }
+}
+
+impl Scenario {
+    /// Reads, validates and builds a scenario file that gives its gains.
+    pub fn load(path: &Path) -> Result<Self, ScenarioError> {
+        Params::load(path)?.build()
+    }
+
+    /// Validates and builds scenario text that gives its gains; `fallback_name`
+    /// names it if the file does not.
+    pub fn parse(text: &str, fallback_name: &str) -> Result<Self, ScenarioError> {
+        Params::from_toml(text, fallback_name)?.build()
+    }
+}
