@@ -49,6 +49,7 @@ pub mod prepare;
 pub mod results;
 pub mod scenario;
 pub mod sim;
+pub mod spec;
 pub mod tuning;
 
 pub use model_error::ModelError;

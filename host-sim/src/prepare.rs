@@ -7,11 +7,9 @@
 
 use std::path::Path;
 
-use serde::Serialize;
-
 use crate::model_error::ModelError;
 use crate::plant::sense_chain::SenseFilter;
-use crate::results::metrics::PredictedStep;
+use crate::results::report::Designed;
 use crate::scenario::params::GainParams;
 use crate::scenario::{Params, Scenario, ScenarioError};
 use crate::tuning::{self, Basis, DesignReport, Inputs};
@@ -144,23 +142,6 @@ pub fn design(params: &Params, overrides: &Overrides) -> Result<DesignReport, Sc
         name: p.name.clone(),
         survey,
     })
-}
-
-/// How a scenario's gains were designed, for the run's report.
-#[derive(Clone, Debug, PartialEq, Serialize)]
-pub struct Designed {
-    /// The method chosen.
-    pub method: &'static str,
-    /// Proportional gain, V/A.
-    pub kp_v_per_a: f64,
-    /// Integral time, s.
-    pub ti_s: f64,
-    /// The setpoint weight used.
-    pub setpoint_weight: f64,
-    /// Whether that weight came from the scenario instead of the method.
-    pub weight_from_scenario: bool,
-    /// The unit step the design predicts with that weight (linear, no saturation).
-    pub predicted: PredictedStep,
 }
 
 /// A scenario ready to run.

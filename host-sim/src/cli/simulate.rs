@@ -5,7 +5,7 @@ use std::io::Write;
 use std::path::PathBuf;
 
 use crate::cli::progress::Progress;
-use crate::plot::step_response_svg;
+use crate::plot::{StepPlot, step_response_svg};
 use crate::prepare;
 use crate::results::report;
 use crate::scenario::Scenario;
@@ -106,7 +106,7 @@ fn write_files(
     super::write_with(&csv, |f| trace.write_csv(f))?;
     written.push(csv.display().to_string());
     let svg = dir.join(format!("{stem}.svg"));
-    let doc = step_response_svg(trace, &report::plot_of(scenario, rep));
+    let doc = step_response_svg(trace, &StepPlot::of(scenario, rep));
     super::write_with(&svg, |f| f.write_all(doc.as_bytes()))?;
     written.push(svg.display().to_string());
     if args.edges {

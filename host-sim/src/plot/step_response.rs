@@ -4,8 +4,11 @@
 //! overcurrent threshold when it is in view.
 
 use crate::plot::svg::{Axis, Canvas, padded};
-use crate::results::metrics::{SETTLING_BAND, Spec, StepMetrics};
+use crate::results::metrics::{SETTLING_BAND, StepMetrics};
+use crate::results::report::Report;
+use crate::scenario::Scenario;
 use crate::sim::trace::Trace;
+use crate::spec::Spec;
 
 // Colours chosen for this project: current dark blue, request grey, setpoint
 // teal, duty orange, bands green, limits red.
@@ -29,6 +32,19 @@ pub struct StepPlot {
     pub overcurrent_a: Option<f64>,
     /// Largest duty (drawn at +/- on the duty axis).
     pub max_duty: Option<f64>,
+}
+
+impl StepPlot {
+    /// What the step plot needs from a scenario and its report.
+    pub fn of(scenario: &Scenario, report: &Report) -> Self {
+        Self {
+            title: format!("{}: step response ({} bridge)", report.name, report.bridge_mode),
+            steps: report.steps.clone(),
+            spec: scenario.spec,
+            overcurrent_a: Some(scenario.overcurrent_a),
+            max_duty: Some(scenario.max_duty),
+        }
+    }
 }
 
 /// The SVG document.

@@ -7,11 +7,27 @@ use pi_core::{FaultSet, LoopConfig, Protection};
 use serde::Serialize;
 
 use crate::plant::bridge::Modulation;
-use crate::plot::StepPlot;
-use crate::prepare::Designed;
 use crate::results::metrics::{self, Check, StepMetrics};
 use crate::scenario::{Scenario, ScenarioError};
 use crate::sim::trace::Trace;
+use crate::spec::PredictedStep;
+
+/// How a scenario's gains were designed, for the run's report.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct Designed {
+    /// The method chosen.
+    pub method: &'static str,
+    /// Proportional gain, V/A.
+    pub kp_v_per_a: f64,
+    /// Integral time, s.
+    pub ti_s: f64,
+    /// The setpoint weight used.
+    pub setpoint_weight: f64,
+    /// Whether that weight came from the scenario instead of the method.
+    pub weight_from_scenario: bool,
+    /// The unit step the design predicts with that weight (linear, no saturation).
+    pub predicted: PredictedStep,
+}
 
 /// Steps smaller than this are not measured, amperes.
 pub const MIN_STEP_A: f64 = 1e-3;
@@ -220,17 +236,6 @@ pub fn summarise(scenario: &Scenario, designed: Option<&Designed>, trace: &Trace
             .fold(f64::NEG_INFINITY, f64::max),
         protections: protections(&scenario.loop_config, scenario.chain.speed_feedback),
         designed: designed.cloned(),
-    }
-}
-
-/// What the step plot needs from a scenario and its report.
-pub fn plot_of(scenario: &Scenario, report: &Report) -> StepPlot {
-    StepPlot {
-        title: format!("{}: step response ({} bridge)", report.name, report.bridge_mode),
-        steps: report.steps.clone(),
-        spec: scenario.spec,
-        overcurrent_a: Some(scenario.overcurrent_a),
-        max_duty: Some(scenario.max_duty),
     }
 }
 

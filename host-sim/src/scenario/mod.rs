@@ -5,7 +5,7 @@
 //! values out of range: the error names the field and what it needs, in one
 //! sentence. The annotated example is `host-sim/scenarios/carousel_step.toml`.
 //!
-//! * [`file`] (private): the TOML shapes.
+//! * `file` (private): the TOML shapes; `convert` (private): file to params.
 //! * [`params`]: [`Params`], the validated parameter set with optional gains:
 //!   what overrides, sweeps and identification change.
 //! * [`build`]: params to blocks and the firmware's `LoopConfig` ([`Scenario`]);
@@ -16,6 +16,7 @@
 //! This module never imports `tuning/`; [`crate::prepare`] joins the two.
 
 pub mod build;
+mod convert;
 mod file;
 mod names;
 pub mod params;
@@ -28,8 +29,8 @@ pub use params::Params;
 
 use crate::model_error::ModelError;
 use crate::plant::timing::Timing;
-use crate::results::metrics::Spec;
 use crate::sim::runner::{DriveChain, Event};
+use crate::spec::Spec;
 
 /// Why a scenario could not be used.
 #[derive(Debug)]

@@ -3,5 +3,6 @@
 //! the firmware's own code) at each sampling instant; [`trace`] is what a run
 //! leaves.
 
+pub mod controller;
 pub mod runner;
 pub mod trace;

@@ -11,7 +11,7 @@ use crate::plant::bridge::BridgeParams;
 use crate::plant::motor::MotorParams;
 use crate::plant::sense_chain::SenseParams;
 use crate::plant::timing::{Timing, TimingParams};
-use crate::results::metrics::Spec as Limits;
+use crate::spec::Spec as Limits;
 
 /// The design's inputs, SI units, validated.
 #[derive(Clone, Copy, Debug, PartialEq, Serialize)]

@@ -22,7 +22,7 @@ use serde::Serialize;
 
 use super::basis::Basis;
 use crate::model_error::ModelError;
-use crate::results::metrics::PredictedStep as Predicted;
+use crate::spec::PredictedStep as Predicted;
 
 /// Fewer control periods than this per rise time is too coarse (common practice).
 pub const MIN_PERIODS_PER_RISE: f64 = 10.0;

@@ -1,0 +1,346 @@
+//! The parsed file to [`Params`]: defaults filled in, choices that exclude
+//! each other checked, each field named as the file names it. Ranges are
+//! checked by [`Params::validate`].
+
+use pi_core::TripClass;
+
+use super::ScenarioError;
+use super::file::{
+    ActionName, AntiWindupName, DecayName, FaultName, File, FilterKind, ModeName, RuleName, TripClassName,
+};
+use super::params::{
+    AntiWindupParams, ControllerParams, EventAction, EventParams, GainParams, MAX_DURATION_S, OverloadCurve,
+    Params, ProtectionParams, SetpointParams,
+};
+use crate::model_error::ModelError;
+use crate::plant::bridge::{BridgeParams, Decay, Modulation, SwitchDrop};
+use crate::plant::faults::{FaultKind, Injection};
+use crate::plant::motor::{MotorParams, WindingThermal};
+use crate::plant::sense_chain::{SenseFilter, SenseParams};
+use crate::plant::timing::TimingParams;
+use crate::spec::Spec;
+
+fn missing(field: String, needs: String) -> ScenarioError {
+    ModelError::new(field, "(missing)", needs).into()
+}
+
+pub(super) fn from_file(f: File, fallback_name: &str) -> Result<Params, ScenarioError> {
+    let duration_s = ModelError::within("duration_s", f.duration_s, 1e-9, MAX_DURATION_S)?;
+    if f.record_every_ticks == 0 {
+        return Err(ModelError::new("record_every_ticks", 0, "a whole number of at least 1").into());
+    }
+    let m = &f.motor;
+    let inertia = match (m.inertia_kg_m2, m.locked_rotor) {
+        (Some(j), _) => j,
+        (None, true) => 1.0,
+        (None, false) => {
+            return Err(missing(
+                "motor.inertia_kg_m2".into(),
+                "given unless locked_rotor = true".into(),
+            ));
+        }
+    };
+    let motor = MotorParams {
+        resistance_ohm: m.resistance_ohm,
+        inductance_h: m.inductance_h,
+        back_emf_v_s_per_rad: m.back_emf_v_s_per_rad,
+        torque_n_m_per_a: m.torque_n_m_per_a.unwrap_or(m.back_emf_v_s_per_rad),
+        inertia_kg_m2: inertia,
+        viscous_n_m_s_per_rad: m.viscous_n_m_s_per_rad,
+        coulomb_n_m: m.coulomb_n_m,
+        locked_rotor: m.locked_rotor,
+        thermal: m.thermal.as_ref().map(|t| WindingThermal {
+            ambient_c: t.ambient_c,
+            resistance_k_per_w: t.resistance_k_per_w,
+            capacitance_j_per_k: t.capacitance_j_per_k,
+            initial_c: t.initial_c.unwrap_or(t.ambient_c),
+        }),
+    };
+    let b = &f.bridge;
+    let switch = match (b.rds_on_ohm, b.switch_drop_v) {
+        (Some(r), None) => SwitchDrop::OnResistance(r),
+        (None, Some(v)) => SwitchDrop::Fixed(v),
+        (None, None) => SwitchDrop::OnResistance(0.0),
+        (Some(_), Some(v)) => {
+            return Err(ModelError::new(
+                "bridge.switch_drop_v",
+                v,
+                "left out when rds_on_ohm is given (a switch is a MOSFET or a bipolar transistor, not both)",
+            )
+            .into());
+        }
+    };
+    let bridge = BridgeParams {
+        supply_v: b.supply_v,
+        source_resistance_ohm: b.source_resistance_ohm,
+        pwm_frequency_hz: b.pwm_frequency_hz,
+        modulation: match b.mode {
+            ModeName::Averaged => Modulation::Averaged,
+            ModeName::Switching => Modulation::Switching,
+        },
+        dead_time_s: b.dead_time_s,
+        switch,
+        diode_drop_v: b.diode_drop_v,
+        decay: match b.decay {
+            DecayName::Slow => Decay::Slow,
+            DecayName::Fast => Decay::Fast,
+        },
+    };
+    let s = &f.sense;
+    let filter = match &s.filter {
+        None => SenseFilter::None,
+        Some(fs) => match (fs.kind, fs.q) {
+            (FilterKind::Rc, None) => SenseFilter::Rc {
+                cutoff_hz: fs.cutoff_hz,
+            },
+            (FilterKind::Rc, Some(q)) => {
+                return Err(ModelError::new("sense.filter.q", q, "left out for an rc filter").into());
+            }
+            (FilterKind::SecondOrder, q) => SenseFilter::SecondOrder {
+                cutoff_hz: fs.cutoff_hz,
+                q: q.unwrap_or(std::f64::consts::FRAC_1_SQRT_2),
+            },
+        },
+    };
+    let sense = SenseParams {
+        shunt_ohm: s.shunt_ohm,
+        amplifier_gain: s.amplifier_gain,
+        amplifier_offset_v: s.amplifier_offset_v.unwrap_or(0.5 * s.adc_reference_v),
+        offset_error_v: s.offset_error_v,
+        filter,
+        adc_bits: s.adc_bits,
+        adc_reference_v: s.adc_reference_v,
+        noise_rms_v: s.noise_rms_v,
+        seed: s.seed,
+    };
+    let t = &f.timing;
+    let timing = TimingParams {
+        control_period_s: t.control_period_s,
+        sample_phase: t.sample_phase,
+        computation_delay_s: t.computation_delay_s,
+        jitter_rms_s: t.jitter_rms_s,
+        seed: t.seed,
+    };
+    let sp = &f.spec;
+    let spec = Spec {
+        rise_time_s: sp.rise_time_s,
+        overshoot_pct: sp.overshoot_pct,
+        settling_time_s: sp.settling_time_s,
+        steady_state_error_a: sp.steady_state_error_a,
+    };
+    let controller = controller(&f)?;
+    let mut events = Vec::new();
+    for (k, e) in f.events.iter().enumerate() {
+        let field = |name: &str| format!("events[{k}].{name}");
+        let unused = |name: &str, v: Option<f64>| -> Result<(), ScenarioError> {
+            match v {
+                Some(v) => Err(ModelError::new(
+                    field(name),
+                    v,
+                    format!("left out for action {}", action_name(e.action)),
+                )
+                .into()),
+                None => Ok(()),
+            }
+        };
+        let action = match e.action {
+            ActionName::SetCurrent => {
+                unused("kp_v_per_a", e.kp_v_per_a)?;
+                unused("ti_s", e.ti_s)?;
+                let a = e
+                    .current_a
+                    .ok_or_else(|| missing(field("current_a"), "given for set_current".into()))?;
+                EventAction::SetCurrent(a)
+            }
+            ActionName::Retune => {
+                unused("current_a", e.current_a)?;
+                let kp = e
+                    .kp_v_per_a
+                    .ok_or_else(|| missing(field("kp_v_per_a"), "given for retune".into()))?;
+                let ti = e
+                    .ti_s
+                    .ok_or_else(|| missing(field("ti_s"), "given for retune".into()))?;
+                EventAction::Retune(GainParams {
+                    kp_v_per_a: kp,
+                    ti_s: ti,
+                })
+            }
+            other => {
+                unused("current_a", e.current_a)?;
+                unused("kp_v_per_a", e.kp_v_per_a)?;
+                unused("ti_s", e.ti_s)?;
+                match other {
+                    ActionName::Enable => EventAction::Enable,
+                    ActionName::Disable => EventAction::Disable,
+                    _ => EventAction::ClearFaults,
+                }
+            }
+        };
+        events.push(EventParams { at_s: e.at_s, action });
+    }
+    let mut load_profile: Vec<(f64, f64)> = f.load.iter().map(|l| (l.at_s, l.torque_n_m)).collect();
+    load_profile.sort_by(|a, b| a.0.total_cmp(&b.0));
+    let mut faults = Vec::new();
+    for (k, fs) in f.faults.iter().enumerate() {
+        let need = |name: &str, v: Option<f64>| {
+            v.ok_or_else(|| {
+                missing(
+                    format!("faults[{k}].{name}"),
+                    format!("given for {}", fault_name(fs.kind)),
+                )
+            })
+        };
+        let kind = match fs.kind {
+            FaultName::SensorOpen => FaultKind::SensorOpen,
+            FaultName::SensorShorted => FaultKind::SensorShorted,
+            FaultName::SensorStuck => FaultKind::SensorStuck,
+            FaultName::LockedRotor => FaultKind::LockedRotor,
+            FaultName::BusLevel => FaultKind::BusLevel(need("supply_v", fs.supply_v)?),
+            FaultName::LoadStep => FaultKind::LoadStep(need("torque_n_m", fs.torque_n_m)?),
+        };
+        faults.push(Injection {
+            kind,
+            start_s: fs.start_s,
+            end_s: fs.end_s,
+        });
+    }
+    Ok(Params {
+        name: f.name.clone().unwrap_or_else(|| fallback_name.to_string()),
+        description: f.description.clone(),
+        duration_s,
+        record_every_ticks: f.record_every_ticks,
+        motor,
+        bridge,
+        sense,
+        timing,
+        controller,
+        spec,
+        events,
+        load_profile,
+        faults,
+    })
+}
+
+fn action_name(a: ActionName) -> &'static str {
+    match a {
+        ActionName::Enable => "enable",
+        ActionName::Disable => "disable",
+        ActionName::SetCurrent => "set_current",
+        ActionName::Retune => "retune",
+        ActionName::ClearFaults => "clear_faults",
+    }
+}
+
+fn fault_name(k: FaultName) -> &'static str {
+    match k {
+        FaultName::SensorOpen => "sensor_open",
+        FaultName::SensorShorted => "sensor_shorted",
+        FaultName::SensorStuck => "sensor_stuck",
+        FaultName::BusLevel => "bus_level",
+        FaultName::LockedRotor => "locked_rotor",
+        FaultName::LoadStep => "load_step",
+    }
+}
+
+fn controller(f: &File) -> Result<ControllerParams, ScenarioError> {
+    let c = &f.controller;
+    let gains = match (c.kp_v_per_a, c.ti_s) {
+        (Some(kp), Some(ti)) => Some(GainParams {
+            kp_v_per_a: kp,
+            ti_s: ti,
+        }),
+        (None, None) => None,
+        (Some(_), None) | (None, Some(_)) => {
+            return Err(ModelError::new(
+                "controller.kp_v_per_a",
+                "(only one of kp_v_per_a and ti_s)",
+                "given together with ti_s, or both left out to design them from [spec]",
+            )
+            .into());
+        }
+    };
+    let anti_windup = match (c.anti_windup, c.tracking_time_s) {
+        (Some(AntiWindupName::Clamping), Some(t)) => {
+            return Err(ModelError::new(
+                "controller.tracking_time_s",
+                t,
+                "left out with clamping anti-windup",
+            )
+            .into());
+        }
+        (Some(AntiWindupName::Clamping), None) => Some(AntiWindupParams::Clamping),
+        (_, Some(t)) => Some(AntiWindupParams::BackCalculation {
+            tracking_time_s: Some(t),
+        }),
+        (Some(AntiWindupName::BackCalculation), None) => Some(AntiWindupParams::BackCalculation {
+            tracking_time_s: None,
+        }),
+        (None, None) => None,
+    };
+    let p = &c.protection;
+    let overload = match (p.rated_a, p.trip_class, p.thermal_time_constant_s) {
+        (None, None, None) => None,
+        (Some(rated), Some(class), None) => Some((
+            rated,
+            OverloadCurve::TripClass(match class {
+                TripClassName::Class10A => TripClass::Class10A,
+                TripClassName::Class10 => TripClass::Class10,
+                TripClassName::Class20 => TripClass::Class20,
+                TripClassName::Class30 => TripClass::Class30,
+            }),
+        )),
+        (Some(rated), None, Some(tau)) => Some((rated, OverloadCurve::TimeConstant(tau))),
+        (None, _, _) => {
+            return Err(missing(
+                "controller.protection.rated_a".into(),
+                "given with trip_class or thermal_time_constant_s".into(),
+            ));
+        }
+        (Some(r), _, _) => {
+            return Err(ModelError::new(
+                "controller.protection.rated_a",
+                r,
+                "given with exactly one of trip_class and thermal_time_constant_s",
+            )
+            .into());
+        }
+    };
+    let stuck = match (p.stuck_band_counts, p.stuck_ticks, p.stuck_min_duty) {
+        (None, None, None) => None,
+        (Some(band), Some(ticks), Some(duty)) => Some((band, ticks, duty)),
+        _ => {
+            return Err(ModelError::new(
+                "controller.protection.stuck_band_counts",
+                "(incomplete)",
+                "given together with stuck_ticks and stuck_min_duty",
+            )
+            .into());
+        }
+    };
+    Ok(ControllerParams {
+        gains,
+        setpoint_weight: c.setpoint_weight,
+        tustin: matches!(c.integrator, Some(RuleName::Tustin)),
+        anti_windup,
+        output_limit_v: c.output_limit_v,
+        max_duty: c.max_duty,
+        min_bus_v: c.min_bus_v,
+        feedforward_resistance_ohm: c.feedforward_resistance_ohm,
+        feedforward_back_emf_v_s_per_rad: c.feedforward_back_emf_v_s_per_rad,
+        speed_feedback: c.speed_feedback,
+        setpoint: SetpointParams {
+            min_a: c.setpoint.min_a,
+            max_a: c.setpoint.max_a,
+            slew_a_per_s: c.setpoint.slew_a_per_s,
+        },
+        protection: ProtectionParams {
+            overcurrent_a: p.overcurrent_a,
+            overcurrent_samples: p.overcurrent_samples,
+            bus_min_v: p.bus_min_v,
+            bus_max_v: p.bus_max_v,
+            overload,
+            stuck,
+            max_speed_rad_s: p.max_speed_rad_s,
+        },
+    })
+}
