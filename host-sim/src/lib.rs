@@ -2,43 +2,43 @@
 //!
 //! The simulator runs the real `pi-core` current loop against models of the
 //! motor and the drive chain, on an ordinary computer, so that a current loop can
-//! be checked on every commit without hardware.
+//! be checked on every commit without hardware; and it designs PI gains for a
+//! scenario with `pi_core::design`.
 //!
 //! ```text
-//! scenario (TOML) -> validated blocks -> runner ----tick----> pi_core::CurrentLoop (the real one)
-//!                                          |  ^
-//!                  bridge -> motor -> sense chain (+ fault injectors between blocks)
-//!                                          |
-//!                                        trace -> metrics -> report (table, JSON) / plot (SVG) / CSV
+//! scenario file (TOML) -> scenario::Params (validated; gains optional) -> scenario::build -> blocks + LoopConfig
+//!                                 |                                                   |
+//!          tuning (basis, survey) |                        sim::runner --tick--> pi_core::CurrentLoop (the real one)
+//!                                 |                                                   |  plant: motor, bridge, sense chain,
+//!             prepare: the one joint (load, override, fill gains)                     |  timing, fault injectors
+//!                                                                                     v
+//!                              sim::trace -> results (metrics, verdict, report) -> plot (SVG) / table / JSON / CSV
 //! ```
 //!
-//! **Plant blocks**, one file each, each stepped over an interval with its inputs
-//! held; none of them knows the controller, the scenario format or the plots:
-//!
-//! * [`motor`]: `L di/dt = v - R i - Ke w`, `J dw/dt = Kt i - B w - Tc - T_load`,
-//!   copper heating; the linear part is advanced with its exact solution
-//!   ([`linear`]), so an RL step carries no integration error.
-//! * [`bridge`]: sign-magnitude H-bridge with centre-aligned PWM, dead time,
-//!   switch and diode drops, slow or fast decay, a soft supply; averaged or
-//!   edge-by-edge.
-//! * [`sense_chain`]: shunt, amplifier with offset error, RC or second-order
-//!   filter, ADC with seeded noise ([`noise`]) and quantisation.
-//! * [`faults`]: injectors between blocks: sensor open, shorted or stuck, a bus
-//!   dip or surge, a locked rotor, a load step.
-//! * [`timing`]: when the firmware samples, how long it computes, when the new
-//!   duty reaches the PWM.
-//!
-//! **Running and reporting:** [`runner`] steps the blocks PWM period by PWM
-//! period and calls the controller at each sampling instant; [`trace`] is what a
-//! run leaves; [`metrics`] measures steps (rise, overshoot, settling, error, IAE)
-//! and checks a spec; [`report`] runs a [`scenario`] and makes the table and the
-//! JSON; [`design_report`] applies `pi_core::design` to a scenario; [`plot`]
-//! draws SVG (step response, root locus, frequency response); [`cli`] is the
-//! `ampwright` command (`simulate`, `design`); [`demo`] is the built-in invented
-//! machine and board.
+//! * [`plant`]: the blocks, one file each, each stepped over an interval with
+//!   its inputs held; none knows the controller, the scenario, the results or
+//!   the plots.
+//! * [`sim`]: the runner that steps them and calls the controller at each
+//!   sampling instant, and the trace it leaves.
+//! * [`scenario`]: the file, its validated parameters ([`scenario::Params`],
+//!   what overrides, sweeps and identification change), the build into blocks
+//!   and the firmware's `LoopConfig`, and the one map from pi-core's field
+//!   names to the paths the user wrote. It never designs.
+//! * [`tuning`]: the design basis (derived values computed from the parameters
+//!   when asked) and the survey of every design method, judged by one strict
+//!   rule and chosen by modulus margin. It never reads a scenario.
+//! * [`prepare`]: the one joint between the two: overrides applied before
+//!   anything is designed, missing gains designed.
+//! * [`spec`]: the limits a step should meet and a predicted step (a leaf).
+//! * [`results`]: step metrics (pi-core's one routine), the verdict (pi-core's
+//!   one rule) and the run's report.
+//! * [`plot`]: SVG (step response, root locus, frequency response).
+//! * [`cli`]: the `ampwright` command, one file per command, each owning its
+//!   arguments: parse, call, print.
+//! * [`demo`]: the built-in invented machine and board.
 //!
 //! Model parameters that are out of range are refused with a [`ModelError`]
-//! naming the field.
+//! naming the field (or the command-line option that set it).
 
 pub mod cli;
 pub mod demo;

@@ -10,7 +10,7 @@
 //!   what overrides, sweeps and identification change.
 //! * [`build`]: params to blocks and the firmware's `LoopConfig` ([`Scenario`]);
 //!   never designs.
-//! * [`names`] (private): the one map from pi-core field names to the paths
+//! * `names` (private): the one map from pi-core field names to the paths
 //!   and units the user wrote.
 //!
 //! This module never imports `tuning/`; [`crate::prepare`] joins the two.

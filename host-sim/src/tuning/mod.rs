@@ -1,6 +1,6 @@
 //! PI design for a scenario's winding, sampling and spec, without knowing the
 //! scenario file: [`basis`] (what the design works from, derived values computed
-//! from the parameters when asked), [`survey`] (every method of
+//! from the parameters when asked), [`survey`](mod@survey) (every method of
 //! `pi_core::design` applied, analysed, judged by the one strict rule, chosen
 //! by stability margin, and the nearest feasible spec) and [`table`] (the
 //! survey as a table, JSON and Rust constants).
