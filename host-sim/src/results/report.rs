@@ -299,7 +299,7 @@ impl Report {
             let p = &d.predicted;
             let _ = writeln!(
                 s,
-                "{:>4} {:>8} {:>7} {:>7} {:>8} {:>8.2}% {:>9}   (the design's prediction: linear, unsaturated)",
+                "{:>4} {:>8} {:>7} {:>7} {:>8} {:>8.2}% {:>9}   (the design's prediction: linear, no back-EMF, no saturation)",
                 "pred",
                 "",
                 "",
