@@ -181,12 +181,12 @@ fn a_feedforward_error_names_a_path_the_template_has() {
     );
     assert!(TEMPLATE.contains("max_speed_rad_s ="));
     // A refusal from pi-core's Feedforward names the field the file has.
-    let text = edited(&[(
-        "feedforward_resistance_ohm",
-        "feedforward_resistance_ohm = -1.0",
-    )]);
+    let text = edited(&[("feedforward_resistance_ohm", "feedforward_resistance_ohm = -1.0")]);
     let e = Params::from_toml(&text, "t").unwrap_err().to_string();
-    assert!(e.starts_with("controller.feedforward_resistance_ohm = -1 must be"), "{e}");
+    assert!(
+        e.starts_with("controller.feedforward_resistance_ohm = -1 must be"),
+        "{e}"
+    );
 }
 
 #[test]

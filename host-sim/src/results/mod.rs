@@ -1,6 +1,9 @@
 //! What a run means: [`metrics`] measures each setpoint step with pi-core's one
 //! step-metrics routine and checks it with pi-core's one rule for a limit;
-//! [`report`] runs a scenario and makes the table and the JSON.
+//! [`summary`] gathers every figure a report states on every tick (so a thinned
+//! trace changes none); [`report`] runs a scenario and makes the table and the
+//! JSON.
 
 pub mod metrics;
 pub mod report;
+pub mod summary;

@@ -8,6 +8,7 @@ use serde::Serialize;
 
 use crate::plant::bridge::Modulation;
 use crate::results::metrics::{self, Check, StepMetrics};
+use crate::results::summary::Summary;
 use crate::scenario::{Scenario, ScenarioError};
 use crate::sim::trace::Trace;
 use crate::spec::PredictedStep;
@@ -29,8 +30,7 @@ pub struct Designed {
     pub predicted: PredictedStep,
 }
 
-/// Steps smaller than this are not measured, amperes.
-pub const MIN_STEP_A: f64 = 1e-3;
+pub use crate::results::summary::MIN_STEP_A;
 
 /// The result of one run, ready to print or serialise.
 #[derive(Clone, Debug, Serialize)]
@@ -162,39 +162,44 @@ pub fn protections(config: &LoopConfig, speed_feedback: bool) -> Vec<ProtectionL
 }
 
 /// Runs a scenario with the real `pi-core` loop; `progress` gets the fraction
-/// done; `designed` says how its gains were designed, if they were.
+/// done; `designed` says how its gains were designed, if they were. The trace
+/// keeps one tick in `record_every_ticks`; every figure of the report is
+/// gathered on every tick ([`Summary`]).
 pub fn run(
     scenario: &Scenario,
     designed: Option<&Designed>,
     progress: &mut dyn FnMut(f64),
 ) -> Result<(Trace, Report), ScenarioError> {
     let (mut cl, mut runner) = scenario.start()?;
-    runner.run(&mut cl, scenario.duration_s, progress);
+    let limits = scenario.loop_config.setpoint();
+    let mut summary = Summary::new(limits.min_a() as f64, limits.max_a() as f64);
+    runner.run_observed(&mut cl, scenario.duration_s, progress, &mut |p, note| {
+        summary.observe(p, note)
+    });
+    summary.finish();
     let trace = runner.into_trace();
-    let report = summarise(scenario, designed, &trace);
+    let report = summarise(scenario, designed, &summary, &trace);
     Ok((trace, report))
 }
 
-/// The report of a finished run.
-pub fn summarise(scenario: &Scenario, designed: Option<&Designed>, trace: &Trace) -> Report {
-    // A thinned trace cannot time a step; measure only full-rate traces.
-    let thinned = scenario.record_every_ticks > 1;
-    let steps = if thinned {
-        Vec::new()
-    } else {
-        metrics::steps(&trace.points, MIN_STEP_A)
-    };
+/// The report of a finished run from its summary (the trace gives the log).
+pub fn summarise(
+    scenario: &Scenario,
+    designed: Option<&Designed>,
+    summary: &Summary,
+    trace: &Trace,
+) -> Report {
+    let steps = summary.steps.clone();
     let checks = metrics::verdict(&steps, &scenario.spec);
     let pass = (!checks.is_empty()).then(|| checks.iter().all(|c| c.pass));
-    let all_bits = trace.points.iter().fold(0u16, |acc, p| acc | p.fault_bits);
-    let faults_latched = FaultSet::from_bits(all_bits)
+    let faults_latched = FaultSet::from_bits(summary.fault_bits)
         .iter()
         .map(|f| f.describe().to_string())
         .collect();
-    let first_fault = trace.points.iter().find(|p| p.fault_bits != 0).and_then(|p| {
-        FaultSet::from_bits(p.fault_bits)
+    let first_fault = summary.first_fault.and_then(|(t, bits)| {
+        FaultSet::from_bits(bits)
             .earliest()
-            .map(|f| (f.describe().to_string(), p.t_s))
+            .map(|f| (f.describe().to_string(), t))
     });
     let bridge = scenario.chain.bridge.params();
     Report {
@@ -207,40 +212,35 @@ pub fn summarise(scenario: &Scenario, designed: Option<&Designed>, trace: &Trace
         pwm_frequency_hz: bridge.pwm_frequency_hz,
         control_rate_hz: 1.0 / scenario.timing.control_period_s(),
         duration_s: scenario.duration_s,
-        ticks: (scenario.duration_s / scenario.timing.control_period_s()).round() as usize,
+        ticks: summary.ticks as usize,
         steps,
         checks,
         pass,
         faults_latched,
         first_fault,
-        log: trace
-            .log
-            .iter()
-            .map(|e| (e.t_s, e.text.clone()))
-            .chain(thinned.then(|| {
-                (
-                    0.0,
-                    format!(
-                        "the trace keeps one tick in {}, so steps are not measured",
-                        scenario.record_every_ticks
-                    ),
-                )
-            }))
-            .collect(),
-        peak_current_a: trace.points.iter().map(|p| p.current_a.abs()).fold(0.0, f64::max),
-        peak_duty: trace.points.iter().map(|p| p.duty.abs()).fold(0.0, f64::max),
-        max_winding_c: trace
-            .points
-            .iter()
-            .map(|p| p.winding_c)
-            .fold(f64::NEG_INFINITY, f64::max),
+        log: trace.log.iter().map(|e| (e.t_s, e.text.clone())).collect(),
+        peak_current_a: summary.peak_current.0,
+        peak_duty: summary.peak_duty,
+        max_winding_c: summary.max_winding_c,
         protections: protections(&scenario.loop_config, scenario.chain.speed_feedback),
         designed: designed.cloned(),
     }
 }
 
+/// A number in at most `width` characters: fixed with `decimals`, or in
+/// scientific notation when that would not fit, so the columns stay aligned.
+fn fit(v: f64, width: usize, decimals: usize) -> String {
+    let fixed = format!("{v:.decimals$}");
+    let out = if fixed.len() <= width {
+        fixed
+    } else {
+        format!("{v:.1e}")
+    };
+    format!("{out:>width$}")
+}
+
 fn ms(v: Option<f64>) -> String {
-    v.map_or("-".into(), |s| format!("{:.3}", s * 1e3))
+    v.map_or("-".into(), |s| fit(s * 1e3, 8, 3).trim_start().to_string())
 }
 
 impl Report {
@@ -275,21 +275,37 @@ impl Report {
             "ss_err_a",
             "iae_mA_s"
         );
+        let mut clamped = false;
         for (k, m) in self.steps.iter().enumerate() {
+            clamped |= m.clamped;
+            let head = format!(
+                "{:>4} {:>8} {:>7} {:>7}{}",
+                k,
+                fit(m.at_s * 1e3, 8, 3),
+                fit(m.from_a, 7, 3),
+                fit(m.to_a, 7, 3),
+                if m.clamped { "*" } else { " " }
+            );
+            if let Some(why) = m.interrupted {
+                let _ = writeln!(s, "{head}  interrupted, not scored: {}", why.describe());
+                continue;
+            }
             let _ = writeln!(
                 s,
-                "{:>4} {:>8.3} {:>7.3} {:>7.3} {:>8} {:>8.2}% {:>9} {:>7.3} {:>8.3} {:>9.4} {:>10.4}",
-                k,
-                m.at_s * 1e3,
-                m.from_a,
-                m.to_a,
+                "{head}{:>8} {:>8}% {:>9} {:>7} {:>8} {:>9} {:>10}",
                 ms(m.rise_time_s),
-                m.overshoot_pct,
+                fit(m.overshoot_pct, 8, 2),
                 ms(m.settling_time_s),
-                m.peak_a,
-                m.peak_time_s * 1e3,
-                m.steady_state_error_a,
-                m.iae_a_s * 1e3
+                fit(m.peak_a, 7, 3),
+                fit(m.peak_time_s * 1e3, 8, 3),
+                fit(m.steady_state_error_a, 9, 4),
+                fit(m.iae_a_s * 1e3, 10, 4)
+            );
+        }
+        if clamped {
+            let _ = writeln!(
+                s,
+                "   * the scenario asked for more than the setpoint limits allow; the step is measured to the limit"
             );
         }
         if self.steps.is_empty() {

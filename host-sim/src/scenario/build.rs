@@ -250,12 +250,14 @@ impl Params {
 }
 
 impl Scenario {
-    /// A fresh controller and runner at `t = 0`.
+    /// A fresh controller and runner at `t = 0`, keeping one trace point in
+    /// `record_every_ticks`.
     pub fn start(&self) -> Result<(CurrentLoop, crate::sim::runner::Runner), ScenarioError> {
         let cl = CurrentLoop::new(self.loop_config).map_err(|e| core(Site::Loop, e))?;
         Ok((
             cl,
-            crate::sim::runner::Runner::new(self.chain.clone(), self.timing.clone(), self.events.clone()),
+            crate::sim::runner::Runner::new(self.chain.clone(), self.timing.clone(), self.events.clone())
+                .record_every(self.record_every_ticks),
         ))
     }
 }

@@ -58,6 +58,18 @@ pub struct DriveChain {
     pub speed_feedback: bool,
 }
 
+/// What happened at a tick besides its trace point, for whoever watches the
+/// run tick by tick.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub struct TickNote {
+    /// A retune command was handed to the controller before this tick.
+    pub retuned: bool,
+    /// The supply is off its nominal level (an injected dip or surge).
+    pub bus_event: bool,
+    /// An injected sensor fault changed the reading.
+    pub sensor_fault: bool,
+}
+
 /// The runner.
 #[derive(Clone, Debug)]
 pub struct Runner {
@@ -75,6 +87,8 @@ pub struct Runner {
     charge_a_s: f64,
     charge_time_s: f64,
     trace: Trace,
+    /// The last tick's point and note, every tick (thinning applies to the trace only).
+    last: Option<(TracePoint, TickNote)>,
 }
 
 impl Runner {
@@ -96,6 +110,7 @@ impl Runner {
             charge_a_s: 0.0,
             charge_time_s: 0.0,
             trace: Trace::default(),
+            last: None,
         }
     }
 
@@ -140,11 +155,29 @@ impl Runner {
     /// Runs until `duration_s`, calling `progress` with the fraction done about a
     /// hundred times.
     pub fn run(&mut self, controller: &mut dyn Controller, duration_s: f64, progress: &mut dyn FnMut(f64)) {
+        self.run_observed(controller, duration_s, progress, &mut |_, _| {});
+    }
+
+    /// [`Runner::run`], and `observe` called with every control tick's point
+    /// and note, whether the trace keeps it or not.
+    pub fn run_observed(
+        &mut self,
+        controller: &mut dyn Controller,
+        duration_s: f64,
+        progress: &mut dyn FnMut(f64),
+        observe: &mut dyn FnMut(&TracePoint, &TickNote),
+    ) {
         let t_pwm = self.chain.bridge.pwm_period_s();
         let total = (duration_s / t_pwm).round().max(0.0) as u64;
         let every = (total / 100).max(1);
+        // The trace's length is known: one allocation, no copies as it grows.
+        let kept = total.saturating_sub(self.period) / self.timing.periods_per_tick() / self.record_every + 1;
+        self.trace.points.reserve(usize::try_from(kept).unwrap_or(0));
         while self.period < total {
             self.step_period(controller);
+            if let Some((p, note)) = self.last.take() {
+                observe(&p, &note);
+            }
             if self.period.is_multiple_of(every) {
                 progress(self.period as f64 / total as f64);
             }
@@ -343,18 +376,21 @@ impl Runner {
     }
 
     fn sample(&mut self, controller: &mut dyn Controller, t_s: f64, bus_v: f64, period: u64) {
+        let mut note = TickNote::default();
         // Commands from the main loop due by now.
         while let Some(ev) = self.events.get(self.next_event) {
             if ev.at_s > t_s + 1e-12 {
                 break;
             }
-            if let Command::SetCurrent(a) = ev.command {
-                self.request_a = a as f64;
+            match ev.command {
+                Command::SetCurrent(a) => self.request_a = a as f64,
+                Command::Retune(_) => note.retuned = true,
+                _ => {}
             }
             if let Err(why) = controller.command(ev.command) {
                 self.trace.log.push(LogEntry {
                     t_s,
-                    text: format!("command {:?} refused: {why}", ev.command),
+                    text: format!("{} refused: {why}", describe(&ev.command)),
                 });
             }
             self.next_event += 1;
@@ -362,6 +398,9 @@ impl Runner {
         let full_scale = ((1u32 << self.chain.sense.params().adc_bits) - 1) as u16;
         let raw = self.chain.sense.convert();
         let counts = self.chain.injectors.reading(t_s, raw, full_scale);
+        note.sensor_fault = counts != raw;
+        let nominal = self.chain.bridge.params().supply_v;
+        note.bus_event = self.chain.injectors.supply_v(t_s, nominal) != nominal;
         let speed = self.chain.motor.speed_rad_s();
         let m = Measurement {
             counts,
@@ -382,10 +421,7 @@ impl Runner {
         self.charge_time_s = 0.0;
         let keep = self.ticks.is_multiple_of(self.record_every);
         self.ticks += 1;
-        if !keep {
-            return;
-        }
-        self.trace.points.push(TracePoint {
+        let point = TracePoint {
             t_s,
             request_a: self.request_a,
             setpoint_a: view.setpoint_a,
@@ -401,6 +437,21 @@ impl Runner {
             winding_c: self.chain.motor.temperature_c(),
             fault_bits: view.fault_bits,
             state: view.state,
-        });
+        };
+        if keep {
+            self.trace.points.push(point);
+        }
+        self.last = Some((point, note));
+    }
+}
+
+/// A command in words, for the run's log.
+fn describe(c: &Command) -> String {
+    match c {
+        Command::Enable => "enable".into(),
+        Command::Disable => "disable".into(),
+        Command::ClearFaults => "clear_faults".into(),
+        Command::SetCurrent(a) => format!("set_current to {a} A"),
+        Command::Retune(_) => "retune".into(),
     }
 }

@@ -1,0 +1,128 @@
+//! Long runs are faithful: thinning the stored trace changes no figure of the
+//! report, the 150 s jam scenario stays small, and steps that something
+//! interrupted are reported as such instead of scored. One test per process
+//! matters for the memory check, so this suite is its own binary.
+
+use host_sim::results::metrics::Interruption;
+use host_sim::results::report;
+use host_sim::scenario::Params;
+
+const JAM: &str = include_str!("../host-sim/scenarios/carousel_jam.toml");
+const DEMO: &str = include_str!("../host-sim/scenarios/carousel_step.toml");
+
+fn edited(text: &str, edits: &[(&str, &str)]) -> String {
+    text.lines()
+        .map(|l| match edits.iter().find(|(k, _)| l.starts_with(k)) {
+            Some((_, w)) => w.to_string(),
+            None => l.to_string(),
+        })
+        .collect::<Vec<_>>()
+        .join("\n")
+}
+
+fn run(text: &str) -> (host_sim::Trace, report::Report) {
+    let p = Params::from_toml(text, "t").unwrap();
+    let s = p.build().unwrap();
+    report::run(&s, None, &mut |_| {}).unwrap()
+}
+
+/// The jam scenario shortened to 3 s with a 1 s I^2t time constant, so that it
+/// trips inside the window; kept whole and kept one tick in 200.
+#[test]
+fn thinning_the_trace_changes_no_figure_of_the_report() {
+    let short = |every: &str| {
+        edited(
+            JAM,
+            &[
+                ("duration_s", "duration_s = 3.0"),
+                ("record_every_ticks", &format!("record_every_ticks = {every}")),
+                ("trip_class", "thermal_time_constant_s = 1.0"),
+            ],
+        )
+    };
+    let (full_trace, full) = run(&short("1"));
+    let (thin_trace, thin) = run(&short("200"));
+    assert_eq!(full_trace.points.len(), 60_000);
+    assert_eq!(thin_trace.points.len(), 300);
+    assert!(full.first_fault.is_some(), "the shortened jam must trip");
+    assert_eq!(full.json(), thin.json());
+    // The figures the thinned trace alone would get wrong are right.
+    let peak_duty_in_thin_trace = thin_trace.points.iter().map(|p| p.duty.abs()).fold(0.0, f64::max);
+    println!(
+        "peak duty {} (the thinned trace alone says {peak_duty_in_thin_trace}), first fault {:?}",
+        thin.peak_duty, thin.first_fault
+    );
+}
+
+#[test]
+fn the_jam_run_writes_a_small_trace_and_trips_when_stated() {
+    let (trace, rep) = run(JAM);
+    let mut csv = Vec::new();
+    trace.write_csv(&mut csv).unwrap();
+    println!("{} rows, {} bytes of CSV", trace.points.len(), csv.len());
+    assert!(csv.len() < 5_000_000, "{} bytes", csv.len());
+    let (what, t) = rep.first_fault.clone().unwrap();
+    assert!(what.contains("I^2t"), "{what}");
+    // The scenario's own statement: class 10 trips it at 115.9 s.
+    assert!((t - 115.9).abs() < 0.05, "{t}");
+    assert!((rep.peak_duty - 0.95).abs() < 1e-6, "{}", rep.peak_duty);
+    // Peak memory of this test process (Linux): the trace is thinned.
+    if let Ok(status) = std::fs::read_to_string("/proc/self/status") {
+        let kb: u64 = status
+            .lines()
+            .find(|l| l.starts_with("VmHWM:"))
+            .and_then(|l| l.split_whitespace().nth(1))
+            .and_then(|v| v.parse().ok())
+            .unwrap();
+        println!("peak resident memory {kb} kB");
+        assert!(kb < 40_000, "{kb} kB");
+    }
+}
+
+#[test]
+fn a_bus_dip_interrupts_the_step_it_falls_in() {
+    // The demo with the bus sagging to 20 V (inside the window: no fault) for
+    // 1 ms right after the first step.
+    let text = format!(
+        "{DEMO}\n[[faults]]\nkind = \"bus_level\"\nsupply_v = 20.0\nstart_s = 1.2e-3\nend_s = 2.2e-3\n"
+    );
+    let (_, rep) = run(&text);
+    assert_eq!(rep.steps[0].interrupted, Some(Interruption::BusEvent));
+    assert_eq!(rep.steps[1].interrupted, None);
+    assert!(rep.checks.iter().all(|c| c.step == 1), "{:?}", rep.checks);
+    assert!(
+        rep.table()
+            .contains("interrupted, not scored: the bus left its nominal level")
+    );
+}
+
+#[test]
+fn a_sensor_fault_interrupts_the_step_and_a_retune_too() {
+    let text = format!(
+        "{DEMO}\n[[faults]]\nkind = \"sensor_shorted\"\nstart_s = 12e-3\n\n[[events]]\nat_s = 2.0e-3\naction = \"retune\"\nkp_v_per_a = 10.0\nti_s = 1.2e-3\n"
+    );
+    let (_, rep) = run(&text);
+    assert_eq!(rep.steps[0].interrupted, Some(Interruption::Retune));
+    assert_eq!(rep.steps[1].interrupted, Some(Interruption::Fault));
+    assert_eq!(rep.pass, None, "nothing left to score");
+}
+
+#[test]
+fn a_run_that_ends_before_the_step_settles_says_so() {
+    let text = edited(DEMO, &[("duration_s", "duration_s = 10.2e-3")]);
+    let (_, rep) = run(&text);
+    assert_eq!(rep.steps[1].interrupted, Some(Interruption::EndOfRun));
+}
+
+#[test]
+fn a_request_beyond_the_setpoint_limits_is_measured_to_the_limit_and_marked() {
+    let text = DEMO.replace("current_a = 1.5", "current_a = 6.5");
+    let (_, rep) = run(&text);
+    let s = &rep.steps[0];
+    assert!(s.clamped);
+    assert_eq!(s.to_a, 4.0);
+    assert!(
+        rep.table()
+            .contains("* the scenario asked for more than the setpoint limits allow")
+    );
+}
