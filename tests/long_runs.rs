@@ -12,9 +12,10 @@ const DEMO: &str = include_str!("../host-sim/scenarios/carousel_step.toml");
 
 fn edited(text: &str, edits: &[(&str, &str)]) -> String {
     text.lines()
-        .map(|l| match edits.iter().find(|(k, _)| l.starts_with(k)) {
-            Some((_, w)) => w.to_string(),
-            None => l.to_string(),
+        .filter_map(|l| match edits.iter().find(|(k, _)| l.starts_with(k)) {
+            Some((_, "")) => None,
+            Some((_, w)) => Some(w.to_string()),
+            None => Some(l.to_string()),
         })
         .collect::<Vec<_>>()
         .join("\n")
@@ -37,6 +38,8 @@ fn thinning_the_trace_changes_no_figure_of_the_report() {
                 ("duration_s", "duration_s = 3.0"),
                 ("record_every_ticks", &format!("record_every_ticks = {every}")),
                 ("trip_class", "thermal_time_constant_s = 1.0"),
+                ("trip_after_s", ""),
+                ("trip_before_s", ""),
             ],
         )
     };
@@ -66,16 +69,50 @@ fn the_jam_run_writes_a_small_trace_and_trips_when_stated() {
     // The scenario's own statement: class 10 trips it at 115.9 s.
     assert!((t - 115.9).abs() < 0.05, "{t}");
     assert!((rep.peak_duty - 0.95).abs() < 1e-6, "{}", rep.peak_duty);
-    // Peak memory of this test process (Linux): the trace is thinned.
-    if let Ok(status) = std::fs::read_to_string("/proc/self/status") {
-        let kb: u64 = status
+    assert_eq!(rep.pass, Some(true), "{}", rep.table());
+}
+
+/// The jam run alone in a process of its own (this test binary, asked to run
+/// only the ignored test below), so that its peak memory is its own.
+#[test]
+fn the_jam_run_stays_under_40_mb() {
+    let out = std::process::Command::new(std::env::current_exe().unwrap())
+        .args([
+            "jam_alone",
+            "--exact",
+            "--ignored",
+            "--nocapture",
+            "--test-threads=1",
+        ])
+        .output()
+        .unwrap();
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert!(out.status.success(), "{text}");
+    let Some(kb) = text
+        .lines()
+        .find_map(|l| l.split("peak resident kB ").nth(1))
+        .and_then(|v| v.trim().parse::<u64>().ok())
+    else {
+        println!("no /proc/self/status here: memory not measured");
+        return;
+    };
+    println!("the jam run's process peaked at {kb} kB");
+    assert!(kb < 40_000, "{kb} kB");
+}
+
+#[test]
+#[ignore = "run in its own process by the_jam_run_stays_under_40_mb"]
+fn jam_alone() {
+    let (trace, _) = run(JAM);
+    let mut csv = Vec::new();
+    trace.write_csv(&mut csv).unwrap();
+    if let Ok(status) = std::fs::read_to_string("/proc/self/status")
+        && let Some(kb) = status
             .lines()
             .find(|l| l.starts_with("VmHWM:"))
             .and_then(|l| l.split_whitespace().nth(1))
-            .and_then(|v| v.parse().ok())
-            .unwrap();
-        println!("peak resident memory {kb} kB");
-        assert!(kb < 40_000, "{kb} kB");
+    {
+        println!("peak resident kB {kb}");
     }
 }
 
@@ -104,7 +141,7 @@ fn a_sensor_fault_interrupts_the_step_and_a_retune_too() {
     let (_, rep) = run(&text);
     assert_eq!(rep.steps[0].interrupted, Some(Interruption::Retune));
     assert_eq!(rep.steps[1].interrupted, Some(Interruption::Fault));
-    assert_eq!(rep.pass, None, "nothing left to score");
+    assert!(rep.checks.is_empty(), "nothing left to score: {:?}", rep.checks);
 }
 
 #[test]

@@ -39,3 +39,27 @@ pub struct Spec {
     /// Largest steady-state error magnitude, amperes.
     pub steady_state_error_a: Option<f64>,
 }
+
+/// What a run must (not) do, besides its steps meeting the spec: the checks a
+/// CI job asserts on a scenario (its `[expect]` section). Each is optional.
+#[derive(Clone, Copy, Debug, Default, PartialEq, serde::Serialize)]
+pub struct Expectations {
+    /// The run must trip on this cause (a `pi_core::Fault`), within the window
+    /// below if one is given.
+    #[serde(skip)]
+    pub trip: Option<pi_core::Fault>,
+    /// The trip must come at or after this time, s.
+    pub trip_after_s: Option<f64>,
+    /// The trip must come at or before this time, s.
+    pub trip_before_s: Option<f64>,
+    /// No fault may latch at all.
+    pub no_trip: bool,
+    /// The winding stays below this temperature, C.
+    pub max_winding_c: Option<f64>,
+    /// The true current stays below this magnitude, A (default: the
+    /// overcurrent threshold).
+    pub max_current_a: Option<f64>,
+    /// After this time the duty never sits at its limit (the PI works inside
+    /// its range), s.
+    pub unsaturated_after_s: Option<f64>,
+}

@@ -131,6 +131,43 @@ impl Matrix {
     }
 }
 
+/// The last few discretisations of a block, by key (the interval's length and
+/// whatever else the matrices depend on): a runner alternates between a few
+/// interval lengths (before and after the sample), and recomputing a matrix
+/// exponential each time would cost more than the rest of the step. Entries
+/// are replaced oldest first; a hit returns exactly what was computed.
+#[derive(Clone, Debug)]
+pub struct Recent<K, V, const N: usize> {
+    entries: [Option<(K, V)>; N],
+    next: usize,
+}
+
+impl<K, V, const N: usize> Default for Recent<K, V, N> {
+    fn default() -> Self {
+        Self {
+            entries: std::array::from_fn(|_| None),
+            next: 0,
+        }
+    }
+}
+
+impl<K: PartialEq + Copy, V: Copy, const N: usize> Recent<K, V, N> {
+    /// The value for `key`, computed by `make` if it is not among the recent ones.
+    pub fn get(&mut self, key: K, make: impl FnOnce() -> V) -> V {
+        for (k, v) in self.entries.iter().flatten() {
+            if *k == key {
+                return *v;
+            }
+        }
+        let v = make();
+        if N > 0 {
+            self.entries[self.next] = Some((key, v));
+            self.next = (self.next + 1) % N;
+        }
+        v
+    }
+}
+
 /// A linear block discretised exactly for one interval with a first-order hold on
 /// its inputs: `x(dt) = phi x + gamma0 u(0) + gamma1 u(dt)`.
 #[derive(Clone, Copy, Debug, PartialEq)]

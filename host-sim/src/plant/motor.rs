@@ -30,7 +30,7 @@
 //! leaves the pure RL circuit.
 
 use crate::model_error::ModelError;
-use crate::plant::linear::Discrete;
+use crate::plant::linear::{Discrete, Recent};
 
 /// Temperature coefficient of resistance of annealed copper at 20 C, 1/K:
 /// 0.00393 (the International Annealed Copper Standard, IEC 60028; value cited
@@ -131,7 +131,7 @@ pub struct Motor {
     resistance_ohm: f64,
     heat_acc_a2s: f64,
     heat_time_s: f64,
-    cache: Option<(u64, u64, bool, Discrete<2, 2>)>,
+    cache: Recent<(u64, u64, bool), Discrete<2, 2>, 4>,
 }
 
 /// What drives the motor over one interval.
@@ -159,7 +159,7 @@ impl Motor {
             resistance_ohm: params.resistance_ohm,
             heat_acc_a2s: 0.0,
             heat_time_s: 0.0,
-            cache: None,
+            cache: Recent::default(),
         };
         m.resistance_ohm = m.resistance_at(temperature_c);
         Ok(m)
@@ -176,13 +176,12 @@ impl Motor {
 
     fn discrete(&mut self, dt_s: f64, locked: bool) -> Discrete<2, 2> {
         let key = (dt_s.to_bits(), self.resistance_ohm.to_bits(), locked);
-        if let Some((d, r, l, disc)) = &self.cache
-            && (*d, *r, *l) == key
-        {
-            return *disc;
-        }
-        let p = &self.params;
-        let (l, r) = (p.inductance_h, self.resistance_ohm);
+        let (p, r) = (self.params, self.resistance_ohm);
+        self.cache.get(key, || Self::discretise(&p, r, dt_s, locked))
+    }
+
+    fn discretise(p: &MotorParams, r: f64, dt_s: f64, locked: bool) -> Discrete<2, 2> {
+        let l = p.inductance_h;
         // x = [i, w], u = [v, tau_ext] with tau_ext the sum of friction and load
         // torques (signed), so the friction sign is decided per interval.
         let (a, b) = if locked {
@@ -197,9 +196,7 @@ impl Motor {
                 [[1.0 / l, 0.0], [0.0, 1.0 / j]],
             )
         };
-        let disc = Discrete::zero_order_hold(a, b, dt_s);
-        self.cache = Some((key.0, key.1, key.2, disc));
-        disc
+        Discrete::zero_order_hold(a, b, dt_s)
     }
 
     /// Advances `dt_s` seconds with the drive held, and returns the new current.

@@ -23,7 +23,7 @@
 use pi_core::{ConfigError, CurrentSense};
 
 use crate::model_error::ModelError;
-use crate::plant::linear::Discrete;
+use crate::plant::linear::{Discrete, Recent};
 use crate::plant::noise::Gaussian;
 
 /// The anti-aliasing filter.
@@ -109,7 +109,7 @@ pub struct SenseChain {
     x: [f64; 2],
     input_v: f64,
     noise: Gaussian,
-    cache: Option<(u64, Discrete<2, 1>)>,
+    cache: Recent<u64, Discrete<2, 1>, 4>,
 }
 
 impl SenseChain {
@@ -151,7 +151,7 @@ impl SenseChain {
             x: [0.0; 2],
             input_v: 0.0,
             noise: Gaussian::new(params.seed),
-            cache: None,
+            cache: Recent::default(),
         };
         chain.settle(0.0);
         Ok(chain)
@@ -174,14 +174,10 @@ impl SenseChain {
     pub fn advance(&mut self, current_a: f64, dt_s: f64) {
         let u1 = self.amplifier_v(current_a);
         if self.states > 0 && dt_s > 0.0 {
-            let d = match &self.cache {
-                Some((key, d)) if *key == dt_s.to_bits() => *d,
-                _ => {
-                    let d = Discrete::first_order_hold(self.a, self.b, dt_s);
-                    self.cache = Some((dt_s.to_bits(), d));
-                    d
-                }
-            };
+            let (a, b) = (self.a, self.b);
+            let d = self
+                .cache
+                .get(dt_s.to_bits(), || Discrete::first_order_hold(a, b, dt_s));
             self.x = d.step(&self.x, &[self.input_v], &[u1]);
         }
         self.input_v = u1;

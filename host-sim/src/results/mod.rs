@@ -4,6 +4,7 @@
 //! trace changes none); [`report`] runs a scenario and makes the table and the
 //! JSON.
 
+pub mod expect;
 pub mod metrics;
 pub mod report;
 pub mod summary;

@@ -7,6 +7,7 @@ use pi_core::{FaultSet, LoopConfig, Protection};
 use serde::Serialize;
 
 use crate::plant::bridge::Modulation;
+use crate::results::expect::{self, ExpectCheck};
 use crate::results::metrics::{self, Check, StepMetrics};
 use crate::results::summary::Summary;
 use crate::scenario::{Scenario, ScenarioError};
@@ -53,7 +54,12 @@ pub struct Report {
     pub steps: Vec<StepMetrics>,
     /// Each spec criterion on each step.
     pub checks: Vec<Check>,
-    /// All checks pass (`None` when the scenario has no spec or no step).
+    /// Each expectation of the scenario's `[expect]` section (and the true
+    /// current against the overcurrent threshold, always).
+    pub expectations: Vec<ExpectCheck>,
+    /// Safety notes: injected faults no detector sees.
+    pub unprotected: Vec<String>,
+    /// All spec checks and expectations hold (`None`: nothing to check).
     pub pass: Option<bool>,
     /// Faults latched at any time, in bit order.
     pub faults_latched: Vec<String>,
@@ -172,7 +178,8 @@ pub fn run(
 ) -> Result<(Trace, Report), ScenarioError> {
     let (mut cl, mut runner) = scenario.start()?;
     let limits = scenario.loop_config.setpoint();
-    let mut summary = Summary::new(limits.min_a() as f64, limits.max_a() as f64);
+    let mut summary =
+        Summary::new(limits.min_a() as f64, limits.max_a() as f64).with_duty_limit(scenario.max_duty);
     runner.run_observed(&mut cl, scenario.duration_s, progress, &mut |p, note| {
         summary.observe(p, note)
     });
@@ -191,7 +198,13 @@ pub fn summarise(
 ) -> Report {
     let steps = summary.steps.clone();
     let checks = metrics::verdict(&steps, &scenario.spec);
-    let pass = (!checks.is_empty()).then(|| checks.iter().all(|c| c.pass));
+    let expectations = expect::check(&scenario.expect, summary, scenario.overcurrent_a);
+    let unprotected = expect::unprotected(
+        scenario.chain.injectors.list().iter().map(|i| i.kind),
+        &scenario.loop_config,
+    );
+    let pass = (!checks.is_empty() || !expectations.is_empty())
+        .then(|| checks.iter().all(|c| c.pass) && expectations.iter().all(|c| c.pass));
     let faults_latched = FaultSet::from_bits(summary.fault_bits)
         .iter()
         .map(|f| f.describe().to_string())
@@ -215,6 +228,8 @@ pub fn summarise(
         ticks: summary.ticks as usize,
         steps,
         checks,
+        expectations,
+        unprotected,
         pass,
         faults_latched,
         first_fault,
@@ -406,13 +421,28 @@ impl Report {
         for (t, text) in &self.log {
             let _ = writeln!(s, "note at {:.3} ms: {text}", t * 1e3);
         }
+        if !self.expectations.is_empty() {
+            let _ = writeln!(s, "expectations");
+            for c in &self.expectations {
+                let _ = writeln!(
+                    s,
+                    "  {} {}: {}",
+                    if c.pass { "pass" } else { "FAIL" },
+                    c.expected,
+                    c.happened
+                );
+            }
+        }
+        for u in &self.unprotected {
+            let _ = writeln!(s, "warning: {u}");
+        }
         let _ = writeln!(
             s,
             "verdict: {}",
             match self.pass {
-                None => "no spec to check",
-                Some(true) => "PASS, every step meets the spec",
-                Some(false) => "FAIL, see the spec lines marked FAIL",
+                None => "nothing to check",
+                Some(true) => "PASS, every check above holds",
+                Some(false) => "FAIL, see the lines marked FAIL",
             }
         );
         s

@@ -83,6 +83,10 @@ pub struct Summary {
     pub first_fault: Option<(f64, u16)>,
     /// Whether an injected sensor fault was active at any time.
     pub sensor_fault_injected: bool,
+    /// The duty limit (the PI is saturated when the duty sits at it).
+    max_duty: f64,
+    /// The last tick at which the duty sat at its limit, s.
+    pub last_saturated_s: Option<f64>,
     /// The steps measured so far.
     pub steps: Vec<StepMetrics>,
     window: Option<Window>,
@@ -104,8 +108,14 @@ impl Summary {
         Self {
             limits: (min_a, max_a),
             max_winding_c: f64::NEG_INFINITY,
+            max_duty: f64::INFINITY,
             ..Self::default()
         }
+    }
+
+    /// The same, knowing the duty limit, to tell when the PI is saturated.
+    pub fn with_duty_limit(self, max_duty: f64) -> Self {
+        Self { max_duty, ..self }
     }
 
     /// Starts from a known request (a window measured on its own).
@@ -121,6 +131,10 @@ impl Summary {
             self.peak_current = (i, p.t_s, p.measured_a);
         }
         self.peak_duty = self.peak_duty.max(p.duty.abs());
+        // The duty is an f32 in the firmware: at its limit within that precision.
+        if p.enabled && p.duty.abs() >= self.max_duty * (1.0 - 1e-6) {
+            self.last_saturated_s = Some(p.t_s);
+        }
         self.max_winding_c = self.max_winding_c.max(p.winding_c);
         self.fault_bits |= p.fault_bits;
         if p.fault_bits != 0 && self.first_fault.is_none() {

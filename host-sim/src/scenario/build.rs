@@ -100,6 +100,7 @@ impl Params {
             loop_config,
             events,
             spec: self.spec,
+            expect: self.expect,
             overcurrent_a: self.controller.protection.overcurrent_a,
             max_duty: self.controller.max_duty,
             setpoint_max_a: self.setpoint_max_a(),
@@ -118,6 +119,27 @@ impl Params {
         }
         if let Some(v) = s.steady_state_error_a {
             ModelError::non_negative("spec.steady_state_error_a", v)?;
+        }
+        let e = &self.expect;
+        for (name, v) in [
+            ("trip_after_s", e.trip_after_s),
+            ("trip_before_s", e.trip_before_s),
+            ("unsaturated_after_s", e.unsaturated_after_s),
+        ] {
+            if let Some(v) = v {
+                ModelError::within(&format!("expect.{name}"), v, 0.0, self.duration_s)?;
+            }
+        }
+        if let (Some(a), Some(b)) = (e.trip_after_s, e.trip_before_s)
+            && a > b
+        {
+            return Err(ModelError::new("expect.trip_before_s", b, "at or after expect.trip_after_s").into());
+        }
+        if let Some(v) = e.max_winding_c {
+            ModelError::finite("expect.max_winding_c", v)?;
+        }
+        if let Some(v) = e.max_current_a {
+            ModelError::positive("expect.max_current_a", v)?;
         }
         if let Some(pct) = s.overshoot_pct
             && pi_core::design::Spec::new(1.0, pct / 100.0).is_err()

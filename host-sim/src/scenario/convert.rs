@@ -2,11 +2,12 @@
 //! each other checked, each field named as the file names it. Ranges are
 //! checked by [`Params::validate`].
 
-use pi_core::TripClass;
+use pi_core::{Fault, TripClass};
 
 use super::ScenarioError;
 use super::file::{
-    ActionName, AntiWindupName, DecayName, FaultName, File, FilterKind, ModeName, RuleName, TripClassName,
+    ActionName, AntiWindupName, DecayName, FaultCause, FaultName, File, FilterKind, ModeName, RuleName,
+    TripClassName,
 };
 use super::params::{
     AntiWindupParams, ControllerParams, EventAction, EventParams, GainParams, MAX_DURATION_S, OverloadCurve,
@@ -18,7 +19,7 @@ use crate::plant::faults::{FaultKind, Injection};
 use crate::plant::motor::{MotorParams, WindingThermal};
 use crate::plant::sense_chain::{SenseFilter, SenseParams};
 use crate::plant::timing::TimingParams;
-use crate::spec::Spec;
+use crate::spec::{Expectations, Spec};
 
 fn missing(field: String, needs: String) -> ScenarioError {
     ModelError::new(field, "(missing)", needs).into()
@@ -215,6 +216,7 @@ pub(super) fn from_file(f: File, fallback_name: &str) -> Result<Params, Scenario
         timing,
         controller,
         spec,
+        expect: expectations(&f)?,
         events,
         load_profile,
         faults,
@@ -342,5 +344,43 @@ fn controller(f: &File) -> Result<ControllerParams, ScenarioError> {
             stuck,
             max_speed_rad_s: p.max_speed_rad_s,
         },
+    })
+}
+
+fn expectations(f: &File) -> Result<Expectations, ScenarioError> {
+    let e = &f.expect;
+    let trip = e.trip.map(|c| match c {
+        FaultCause::Overcurrent => Fault::Overcurrent,
+        FaultCause::Overload => Fault::Overload,
+        FaultCause::CurrentInvalid => Fault::CurrentInvalid,
+        FaultCause::SensorRail => Fault::SensorRail,
+        FaultCause::SensorStuck => Fault::SensorStuck,
+        FaultCause::BusUndervoltage => Fault::BusUndervoltage,
+        FaultCause::BusOvervoltage => Fault::BusOvervoltage,
+        FaultCause::BusInvalid => Fault::BusInvalid,
+        FaultCause::SpeedInvalid => Fault::SpeedInvalid,
+        FaultCause::SpeedImplausible => Fault::SpeedImplausible,
+    });
+    if trip.is_some() && e.no_trip {
+        return Err(ModelError::new("expect.no_trip", "true", "left out when expect.trip is given").into());
+    }
+    if trip.is_none() {
+        for (name, v) in [
+            ("trip_after_s", e.trip_after_s),
+            ("trip_before_s", e.trip_before_s),
+        ] {
+            if let Some(v) = v {
+                return Err(ModelError::new(format!("expect.{name}"), v, "given with expect.trip").into());
+            }
+        }
+    }
+    Ok(Expectations {
+        trip,
+        trip_after_s: e.trip_after_s,
+        trip_before_s: e.trip_before_s,
+        no_trip: e.no_trip,
+        max_winding_c: e.max_winding_c,
+        max_current_a: e.max_current_a,
+        unsaturated_after_s: e.unsaturated_after_s,
     })
 }

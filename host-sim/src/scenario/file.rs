@@ -48,6 +48,8 @@ pub(super) struct File {
     #[serde(default)]
     pub(super) spec: SpecSection,
     #[serde(default)]
+    pub(super) expect: ExpectSection,
+    #[serde(default)]
     pub(super) events: Vec<EventSection>,
     #[serde(default)]
     pub(super) load: Vec<LoadSection>,
@@ -268,6 +270,36 @@ pub(super) struct SpecSection {
     pub(super) overshoot_pct: Option<f64>,
     pub(super) settling_time_s: Option<f64>,
     pub(super) steady_state_error_a: Option<f64>,
+}
+
+#[derive(Debug, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub(super) struct ExpectSection {
+    /// A fault cause the run must trip on (see `FaultCause`).
+    pub(super) trip: Option<FaultCause>,
+    pub(super) trip_after_s: Option<f64>,
+    pub(super) trip_before_s: Option<f64>,
+    #[serde(default)]
+    pub(super) no_trip: bool,
+    pub(super) max_winding_c: Option<f64>,
+    pub(super) max_current_a: Option<f64>,
+    pub(super) unsaturated_after_s: Option<f64>,
+}
+
+/// pi-core's fault causes as a scenario names them.
+#[derive(Debug, Deserialize, Clone, Copy, PartialEq)]
+#[serde(rename_all = "snake_case")]
+pub(super) enum FaultCause {
+    Overcurrent,
+    Overload,
+    CurrentInvalid,
+    SensorRail,
+    SensorStuck,
+    BusUndervoltage,
+    BusOvervoltage,
+    BusInvalid,
+    SpeedInvalid,
+    SpeedImplausible,
 }
 
 #[derive(Debug, Deserialize, Clone, Copy, PartialEq)]

@@ -30,7 +30,7 @@ pub use params::Params;
 use crate::model_error::ModelError;
 use crate::plant::timing::Timing;
 use crate::sim::runner::{DriveChain, Event};
-use crate::spec::Spec;
+use crate::spec::{Expectations, Spec};
 
 /// Why a scenario could not be used.
 #[derive(Debug)]
@@ -98,6 +98,8 @@ pub struct Scenario {
     pub events: Vec<Event>,
     /// What the steps should meet.
     pub spec: Spec,
+    /// What the run must (not) do besides.
+    pub expect: Expectations,
     /// The overcurrent threshold, amperes (for plots).
     pub overcurrent_a: f64,
     /// The largest duty (for plots).

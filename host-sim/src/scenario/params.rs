@@ -15,7 +15,7 @@ use crate::plant::faults::Injection;
 use crate::plant::motor::MotorParams;
 use crate::plant::sense_chain::SenseParams;
 use crate::plant::timing::TimingParams;
-use crate::spec::Spec;
+use crate::spec::{Expectations, Spec};
 
 /// Longest run accepted, seconds.
 pub const MAX_DURATION_S: f64 = 1e6;
@@ -43,6 +43,8 @@ pub struct Params {
     pub controller: ControllerParams,
     /// Limits each step should meet (also the design's target).
     pub spec: Spec,
+    /// What the run must (not) do besides.
+    pub expect: Expectations,
     /// Commands from the main loop, in file order.
     pub events: Vec<EventParams>,
     /// Load torque from given times, `(at_s, torque_n_m)`, sorted by time.
