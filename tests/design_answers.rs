@@ -170,10 +170,13 @@ fn the_amplifier_offset_is_reported_in_volts() {
 
 #[test]
 fn a_feedforward_error_names_a_path_the_template_has() {
-    let text = edited(&[(
-        "feedforward_back_emf_v_s_per_rad",
-        "feedforward_back_emf_v_s_per_rad = 0.031",
-    )]);
+    let text = edited(&[
+        (
+            "feedforward_back_emf_v_s_per_rad",
+            "feedforward_back_emf_v_s_per_rad = 0.031",
+        ),
+        ("speed_feedback", "speed_feedback = true"),
+    ]);
     let e = Params::from_toml(&text, "t").unwrap_err().to_string();
     assert!(
         e.starts_with("controller.protection.max_speed_rad_s = (missing) must be set"),

@@ -81,7 +81,7 @@ fn malformed_scenarios_name_the_field_in_one_sentence() {
         ),
         (
             demo_with("mode = \"switching\"", "mode = \"switched\""),
-            "unknown variant `switched`",
+            "unknown choice `switched`",
         ),
         (
             demo_with("overcurrent_a = 6.0", "overcurrent_a = 3.0"),

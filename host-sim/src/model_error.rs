@@ -36,12 +36,17 @@ impl ModelError {
         }
     }
 
+    /// An error for `field` holding the number `value`, written compactly.
+    pub fn number(field: impl Into<String>, value: f64, needs: impl Into<String>) -> Self {
+        Self::new(field, num(value), needs)
+    }
+
     /// `value` must be finite and greater than zero.
     pub fn positive(field: &str, value: f64) -> Result<f64, ModelError> {
         if value.is_finite() && value > 0.0 {
             Ok(value)
         } else {
-            Err(Self::new(field, value, "a finite number greater than zero"))
+            Err(Self::number(field, value, "a finite number greater than zero"))
         }
     }
 
@@ -50,7 +55,7 @@ impl ModelError {
         if value.is_finite() && value >= 0.0 {
             Ok(value)
         } else {
-            Err(Self::new(field, value, "a finite number, zero or more"))
+            Err(Self::number(field, value, "a finite number, zero or more"))
         }
     }
 
@@ -59,7 +64,7 @@ impl ModelError {
         if value.is_finite() {
             Ok(value)
         } else {
-            Err(Self::new(field, value, "a finite number"))
+            Err(Self::number(field, value, "a finite number"))
         }
     }
 
@@ -68,7 +73,22 @@ impl ModelError {
         if value.is_finite() && (lo..=hi).contains(&value) {
             Ok(value)
         } else {
-            Err(Self::new(field, value, format!("between {lo} and {hi}")))
+            Err(Self::number(
+                field,
+                value,
+                format!("between {} and {}", num(lo), num(hi)),
+            ))
         }
+    }
+}
+
+/// A number as a person writes it: plain between a thousandth and a million,
+/// in powers of ten outside (`1e12`, not thirteen digits).
+pub fn num(v: f64) -> String {
+    let a = v.abs();
+    if v == 0.0 || !v.is_finite() || (1e-3..1e6).contains(&a) {
+        format!("{v}")
+    } else {
+        format!("{v:e}")
     }
 }

@@ -40,6 +40,13 @@ pub fn run(args: &SimulateArgs) -> i32 {
         }
     };
     let scenario = &prepared.scenario;
+    if args.edges && scenario.chain.bridge.params().modulation != crate::plant::bridge::Modulation::Switching
+    {
+        eprintln!(
+            "ampwright: --edges records the current at every PWM edge, which only the switching bridge has; set bridge.mode = \"switching\" or leave --edges out"
+        );
+        return 2;
+    }
     let mut bar = Progress::new(
         &format!("simulating {}", scenario.name),
         !args.quiet && !args.json,

@@ -214,9 +214,16 @@ pub struct Bridge {
 impl Bridge {
     /// A bridge from validated parameters.
     pub fn new(params: BridgeParams) -> Result<Self, ModelError> {
-        ModelError::positive("bridge.supply_v", params.supply_v)?;
-        ModelError::non_negative("bridge.source_resistance_ohm", params.source_resistance_ohm)?;
-        ModelError::positive("bridge.pwm_frequency_hz", params.pwm_frequency_hz)?;
+        // Ranges past any board this models: a 10 kV bus, 1 kohm of source,
+        // PWM from 10 Hz to 10 MHz.
+        ModelError::within("bridge.supply_v", params.supply_v, 1e-3, 1e4)?;
+        ModelError::within(
+            "bridge.source_resistance_ohm",
+            params.source_resistance_ohm,
+            0.0,
+            1e3,
+        )?;
+        ModelError::within("bridge.pwm_frequency_hz", params.pwm_frequency_hz, 10.0, 1e7)?;
         ModelError::non_negative("bridge.dead_time_s", params.dead_time_s)?;
         if params.dead_time_s >= 0.5 / params.pwm_frequency_hz {
             return Err(ModelError::new(
@@ -226,10 +233,10 @@ impl Bridge {
             ));
         }
         match params.switch {
-            SwitchDrop::OnResistance(r) => ModelError::non_negative("bridge.switch.rds_on_ohm", r)?,
-            SwitchDrop::Fixed(v) => ModelError::non_negative("bridge.switch.drop_v", v)?,
+            SwitchDrop::OnResistance(r) => ModelError::within("bridge.rds_on_ohm", r, 0.0, 1e3)?,
+            SwitchDrop::Fixed(v) => ModelError::within("bridge.switch_drop_v", v, 0.0, 1e3)?,
         };
-        ModelError::non_negative("bridge.diode_drop_v", params.diode_drop_v)?;
+        ModelError::within("bridge.diode_drop_v", params.diode_drop_v, 0.0, 1e3)?;
         Ok(Self {
             supply_v: params.supply_v,
             params,

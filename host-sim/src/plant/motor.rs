@@ -106,8 +106,13 @@ impl MotorParams {
         ModelError::within("motor.back_emf_v_s_per_rad", self.back_emf_v_s_per_rad, 0.0, 1e3)?;
         ModelError::within("motor.torque_n_m_per_a", self.torque_n_m_per_a, 0.0, 1e3)?;
         ModelError::within("motor.inertia_kg_m2", self.inertia_kg_m2, 1e-12, 1e3)?;
-        ModelError::non_negative("motor.viscous_n_m_s_per_rad", self.viscous_n_m_s_per_rad)?;
-        ModelError::non_negative("motor.coulomb_n_m", self.coulomb_n_m)?;
+        ModelError::within(
+            "motor.viscous_n_m_s_per_rad",
+            self.viscous_n_m_s_per_rad,
+            0.0,
+            1e3,
+        )?;
+        ModelError::within("motor.coulomb_n_m", self.coulomb_n_m, 0.0, 1e4)?;
         if let Some(t) = &self.thermal {
             ModelError::finite("motor.thermal.ambient_c", t.ambient_c)?;
             ModelError::positive("motor.thermal.resistance_k_per_w", t.resistance_k_per_w)?;

@@ -13,11 +13,18 @@ use super::params::{AntiWindupParams, EventAction, GainParams, OverloadCurve, Pa
 use super::{Scenario, ScenarioError};
 use crate::model_error::ModelError;
 use crate::plant::bridge::Bridge;
-use crate::plant::faults::Injectors;
+use crate::plant::faults::{FaultKind, Injectors};
 use crate::plant::motor::Motor;
 use crate::plant::sense_chain::SenseChain;
 use crate::plant::timing::Timing;
 use crate::sim::runner::{DriveChain, Event};
+
+/// The largest load torque a scenario may apply, N m: ten kilonewton-metres is
+/// past any machine a current loop of this kind drives.
+pub const MAX_TORQUE_N_M: f64 = 1e4;
+
+/// An injected bus level may reach this multiple of the nominal supply.
+pub const MAX_BUS_FACTOR: f64 = 10.0;
 
 /// Gains used only to check the rest of a controller whose gains will be designed.
 const PLACEHOLDER: GainParams = GainParams {
@@ -60,11 +67,28 @@ impl Params {
         let sense = SenseChain::new(self.sense)?;
         let timing = Timing::new(self.timing, bridge.pwm_period_s())?;
         self.check_spec()?;
+        let c = &self.controller;
+        if c.feedforward_back_emf_v_s_per_rad != 0.0 && !c.speed_feedback {
+            return Err(ModelError::new(
+                "controller.feedforward_back_emf_v_s_per_rad",
+                c.feedforward_back_emf_v_s_per_rad,
+                "0 unless speed_feedback = true (the firmware has no speed to multiply it by)",
+            )
+            .into());
+        }
         let weight = self.controller.setpoint_weight.unwrap_or(default_weight);
         let loop_config = self.loop_config(gains, weight, &sense)?;
         let mut events = Vec::new();
         for (k, e) in self.events.iter().enumerate() {
             let at = ModelError::non_negative(&format!("events[{k}].at_s"), e.at_s)?;
+            if at > self.duration_s {
+                return Err(ModelError::new(
+                    format!("events[{k}].at_s"),
+                    at,
+                    format!("within the run (duration_s = {} s)", self.duration_s),
+                )
+                .into());
+            }
             let field = |name: &str| format!("events[{k}].{name}");
             let command = match e.action {
                 EventAction::Enable => Command::Enable,
@@ -79,8 +103,42 @@ impl Params {
             events.push(Event { at_s: at, command });
         }
         for (k, &(at, tq)) in self.load_profile.iter().enumerate() {
-            ModelError::non_negative(&format!("load[{k}].at_s"), at)?;
-            ModelError::finite(&format!("load[{k}].torque_n_m"), tq)?;
+            ModelError::within(&format!("load[{k}].at_s"), at, 0.0, self.duration_s)?;
+            ModelError::within(
+                &format!("load[{k}].torque_n_m"),
+                tq,
+                -MAX_TORQUE_N_M,
+                MAX_TORQUE_N_M,
+            )?;
+        }
+        for (k, f) in self.faults.iter().enumerate() {
+            if f.start_s > self.duration_s {
+                return Err(ModelError::new(
+                    format!("faults[{k}].start_s"),
+                    f.start_s,
+                    format!("within the run (duration_s = {} s)", self.duration_s),
+                )
+                .into());
+            }
+            match f.kind {
+                FaultKind::LoadStep(t) => {
+                    ModelError::within(
+                        &format!("faults[{k}].torque_n_m"),
+                        t,
+                        -MAX_TORQUE_N_M,
+                        MAX_TORQUE_N_M,
+                    )?;
+                }
+                FaultKind::BusLevel(v) => {
+                    ModelError::within(
+                        &format!("faults[{k}].supply_v"),
+                        v,
+                        0.0,
+                        MAX_BUS_FACTOR * self.bridge.supply_v,
+                    )?;
+                }
+                _ => {}
+            }
         }
         let injectors = Injectors::new(self.faults.clone())?;
         Ok(Scenario {

@@ -191,6 +191,23 @@ pub(super) fn from_file(f: File, fallback_name: &str) -> Result<Params, Scenario
                 )
             })
         };
+        let unused = |name: &str, v: Option<f64>| -> Result<(), ScenarioError> {
+            match v {
+                Some(v) => Err(ModelError::new(
+                    format!("faults[{k}].{name}"),
+                    v,
+                    format!("left out for kind {} (it does not use it)", fault_name(fs.kind)),
+                )
+                .into()),
+                None => Ok(()),
+            }
+        };
+        if fs.kind != FaultName::BusLevel {
+            unused("supply_v", fs.supply_v)?;
+        }
+        if fs.kind != FaultName::LoadStep {
+            unused("torque_n_m", fs.torque_n_m)?;
+        }
         let kind = match fs.kind {
             FaultName::SensorOpen => FaultKind::SensorOpen,
             FaultName::SensorShorted => FaultKind::SensorShorted,

@@ -11,13 +11,70 @@ use super::ScenarioError;
 /// or of the wrong type, is placed by line and column.
 pub(super) fn parse(text: &str) -> Result<File, ScenarioError> {
     toml::from_str(text).map_err(|e| {
-        let (line, column) = e.span().map_or((1, 1), |s| line_col(text, s.start));
+        let offset = e.span().map_or(0, |s| s.start);
+        let (line, column) = line_col(text, offset);
+        let section = section_at(text, offset);
+        let message = plain(e.message());
         ScenarioError::Syntax {
             line,
             column,
-            message: e.message().to_string(),
+            message: match section {
+                Some(s) if message.starts_with("missing field") => format!("{message} in [{s}]"),
+                _ => message,
+            },
         }
     })
+}
+
+/// The table a byte offset falls in (`motor.thermal`, `events`), if any.
+fn section_at(text: &str, offset: usize) -> Option<String> {
+    let before = &text[..offset.min(text.len())];
+    // A span on the header itself belongs to the header's table.
+    let upto = before.len()
+        + text[before.len()..]
+            .find('\n')
+            .unwrap_or(text.len() - before.len());
+    text[..upto]
+        .lines()
+        .rev()
+        .map(str::trim_start)
+        .find(|l| l.starts_with('['))
+        .map(|l| {
+            l.trim_start_matches('[')
+                .split(']')
+                .next()
+                .unwrap_or_default()
+                .trim()
+                .to_string()
+        })
+}
+
+/// The parser's message in the user's terms: no Rust type names.
+fn plain(message: &str) -> String {
+    let mut m = message.trim_end_matches('\n').replace('\n', " ");
+    for (from, to) in [
+        ("expected f64", "expected a number"),
+        ("expected f32", "expected a number"),
+        ("expected u8", "expected a whole number"),
+        ("expected u16", "expected a whole number from 0 to 65535"),
+        ("expected u32", "expected a whole number"),
+        ("expected u64", "expected a whole number, 0 or more"),
+        ("expected usize", "expected a whole number, 0 or more"),
+        ("expected a string", "expected text in quotes"),
+        ("invalid type: string ", "got the text "),
+        ("invalid type: integer ", "got the whole number "),
+        ("invalid type: floating point ", "got the number "),
+        ("invalid type: boolean ", "got "),
+        ("invalid type: sequence", "got a list"),
+        ("invalid type: map", "got a table"),
+        ("invalid value: integer ", "got "),
+        ("wanted string or table", "expected one of the names in quotes"),
+        ("unknown variant", "unknown choice"),
+        ("expected a boolean", "expected true or false"),
+    ] {
+        m = m.replace(from, to);
+    }
+    m
 }
 
 fn line_col(text: &str, offset: usize) -> (usize, usize) {

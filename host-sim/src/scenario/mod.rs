@@ -67,8 +67,7 @@ impl std::fmt::Display for ScenarioError {
                 message,
             } => write!(
                 f,
-                "scenario line {line}, column {column}: {}; see host-sim/scenarios/carousel_step.toml for the fields",
-                message.trim_end_matches('\n').replace('\n', " ")
+                "scenario line {line}, column {column}: {message}; every field, unit and range is in host-sim/SCENARIO_FORMAT.md"
             ),
             ScenarioError::Invalid(e) => write!(f, "{e}"),
         }
