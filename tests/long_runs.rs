@@ -163,3 +163,40 @@ fn a_request_beyond_the_setpoint_limits_is_measured_to_the_limit_and_marked() {
             .contains("* the scenario asked for more than the setpoint limits allow")
     );
 }
+
+#[test]
+fn a_run_whose_trace_would_not_fit_is_refused_with_the_setting_that_fixes_it() {
+    let huge = edited(
+        DEMO,
+        &[
+            ("duration_s", "duration_s = 5000.0"),
+            ("mode", "mode = \"averaged\""),
+        ],
+    );
+    let s = Params::from_toml(&huge, "t").unwrap().build().unwrap();
+    let plan = host_sim::results::plan::Plan::of(&s);
+    assert_eq!(plan.ticks, 1e8);
+    let why = plan.refusal(1).unwrap();
+    assert!(why.contains("set record_every_ticks to 9 or more"), "{why}");
+    // The suggested setting fits.
+    let thinned = edited(
+        &huge,
+        &[("duration_s", "duration_s = 5000.0\nrecord_every_ticks = 9")],
+    );
+    let s = Params::from_toml(&thinned, "t").unwrap().build().unwrap();
+    assert_eq!(host_sim::results::plan::Plan::of(&s).refusal(9), None);
+    // On the command line: exit 2, before anything runs.
+    let dir = ampwright_tests::temp_dir("huge-run");
+    let path = dir.join("huge.toml");
+    std::fs::write(&path, &huge).unwrap();
+    let args = [
+        "ampwright",
+        "simulate",
+        path.to_str().unwrap(),
+        "--out",
+        dir.to_str().unwrap(),
+        "--quiet",
+    ];
+    assert_eq!(host_sim::cli::main(args.map(Into::into)), 2);
+    assert!(!dir.join("t.csv").exists() && !dir.join("huge.csv").exists());
+}

@@ -7,6 +7,7 @@ use std::path::PathBuf;
 use crate::cli::progress::Progress;
 use crate::plot::{StepPlot, step_response_svg};
 use crate::prepare;
+use crate::results::plan::Plan;
 use crate::results::report;
 use crate::scenario::Scenario;
 
@@ -46,6 +47,16 @@ pub fn run(args: &SimulateArgs) -> i32 {
             "ampwright: --edges records the current at every PWM edge, which only the switching bridge has; set bridge.mode = \"switching\" or leave --edges out"
         );
         return 2;
+    }
+    let plan = Plan::of(scenario);
+    if let Some(why) = plan.refusal(scenario.record_every_ticks) {
+        eprintln!("ampwright: {why}");
+        return 2;
+    }
+    if let Some(note) = plan.announcement()
+        && !args.quiet
+    {
+        eprintln!("ampwright: {note}");
     }
     let mut bar = Progress::new(
         &format!("simulating {}", scenario.name),

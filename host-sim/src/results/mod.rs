@@ -6,5 +6,6 @@
 
 pub mod expect;
 pub mod metrics;
+pub mod plan;
 pub mod report;
 pub mod summary;
