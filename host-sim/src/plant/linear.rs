@@ -260,9 +260,124 @@ impl<const N: usize, const M: usize> Discrete<N, M> {
     }
 }
 
+impl<const M: usize> Discrete<2, M> {
+    /// [`Discrete::zero_order_hold`] for two states, computed on 2 x 2 matrices
+    /// instead of the augmented 4 x 4: `Phi = exp(A dt)` and `Gamma = P B dt`
+    /// with `P = sum (A dt)^k / (k + 1)!`, both by scaling and squaring (a
+    /// halving of `A dt` is undone by `P <- (I + E) P / 2`, `E <- E E`, from
+    /// `P(2X) = (I + exp(X)) P(X) / 2`). The same result to rounding, about ten
+    /// times cheaper: the motor's matrices change every millisecond as the
+    /// winding heats.
+    pub fn zero_order_hold_2(a: [[f64; 2]; 2], b: [[f64; M]; 2], dt_s: f64) -> Self {
+        let m = [[a[0][0] * dt_s, a[0][1] * dt_s], [a[1][0] * dt_s, a[1][1] * dt_s]];
+        let norm = (m[0][0].abs() + m[0][1].abs()).max(m[1][0].abs() + m[1][1].abs());
+        let mut squarings = 0u32;
+        let mut scale = 1.0;
+        while norm * scale > 0.5 && squarings < 1100 {
+            scale *= 0.5;
+            squarings += 1;
+        }
+        let x = [
+            [m[0][0] * scale, m[0][1] * scale],
+            [m[1][0] * scale, m[1][1] * scale],
+        ];
+        let mul = |p: &[[f64; 2]; 2], q: &[[f64; 2]; 2]| {
+            [
+                [
+                    p[0][0] * q[0][0] + p[0][1] * q[1][0],
+                    p[0][0] * q[0][1] + p[0][1] * q[1][1],
+                ],
+                [
+                    p[1][0] * q[0][0] + p[1][1] * q[1][0],
+                    p[1][0] * q[0][1] + p[1][1] * q[1][1],
+                ],
+            ]
+        };
+        // E = sum X^k / k!, P = sum X^k / (k + 1)!, 17 terms (the remainder is
+        // below 0.5^17 / 17! relative).
+        let mut power = [[1.0, 0.0], [0.0, 1.0]];
+        let mut e = power;
+        let mut p = power;
+        let mut fact = 1.0; // k!
+        for k in 1..=17 {
+            power = mul(&power, &x);
+            fact *= k as f64;
+            for i in 0..2 {
+                for j in 0..2 {
+                    e[i][j] += power[i][j] / fact;
+                    p[i][j] += power[i][j] / (fact * (k + 1) as f64);
+                }
+            }
+        }
+        for _ in 0..squarings {
+            let half = [
+                [0.5 * (1.0 + e[0][0]), 0.5 * e[0][1]],
+                [0.5 * e[1][0], 0.5 * (1.0 + e[1][1])],
+            ];
+            p = mul(&half, &p);
+            e = mul(&e, &e);
+        }
+        let mut out = Discrete {
+            phi: e,
+            gamma_start: [[0.0; M]; 2],
+            gamma_end: [[0.0; M]; 2],
+        };
+        for i in 0..2 {
+            for j in 0..M {
+                out.gamma_start[i][j] = (p[i][0] * b[0][j] + p[i][1] * b[1][j]) * dt_s;
+            }
+        }
+        out
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn the_two_state_hold_agrees_with_the_augmented_exponential() {
+        // A motor's matrices from a held rotor to a light, fast one, over
+        // intervals from a microsecond to a second.
+        // The last column: the agreement asked over a PWM period. A 1e-9
+        // kg m^2 rotor (a mechanical pole near 1e8 rad/s) needs many
+        // squarings, and the two computations round differently there.
+        for (r, l, ke, j, bv, tol_period) in [
+            (1.9, 2.4e-3, 0.031, 5e-6, 2e-6, 1e-12),
+            (0.2, 1e-4, 0.5, 1e-2, 0.0, 1e-12),
+            (50.0, 0.3, 0.0, 1.0, 0.0, 1e-12),
+            (1.9, 2.4e-3, 0.031, 1e-9, 1e-3, 1e-9),
+        ] {
+            let a = [[-r / l, -ke / l], [ke / j, -bv / j]];
+            let b = [[1.0 / l, 0.0], [0.0, 1.0 / j]];
+            for dt in [1e-6, 25e-6, 1e-3, 1.0] {
+                let fast = Discrete::zero_order_hold_2(a, b, dt);
+                let reference = Discrete::zero_order_hold(a, b, dt);
+                // Over a whole second (values near 1e-51 after many
+                // squarings) within 1e-9.
+                let tol = if dt <= 1e-3 { tol_period } else { 1e-9 };
+                let close = |x: f64, y: f64, scale: f64| (x - y).abs() <= tol * scale.max(1e-300);
+                let scale_phi = reference.phi.iter().flatten().fold(0.0f64, |m, v| m.max(v.abs()));
+                for i in 0..2 {
+                    for k in 0..2 {
+                        assert!(
+                            close(fast.phi[i][k], reference.phi[i][k], scale_phi),
+                            "phi {r} {j} {dt}: {:?} vs {:?}",
+                            fast.phi,
+                            reference.phi
+                        );
+                        let col = (reference.gamma_start[0][k].abs()).max(reference.gamma_start[1][k].abs());
+                        assert!(
+                            close(fast.gamma_start[i][k], reference.gamma_start[i][k], col),
+                            "gamma {r} {j} {dt}: {:?} vs {:?}",
+                            fast.gamma_start,
+                            reference.gamma_start
+                        );
+                    }
+                }
+            }
+        }
+    }
 
     #[test]
     fn scalar_exponential_and_hold() {
