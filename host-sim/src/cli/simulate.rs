@@ -8,6 +8,10 @@ use crate::cli::progress::Progress;
 use crate::plot::{StepPlot, step_response_svg};
 use crate::prepare;
 use crate::results::plan::Plan;
+use crate::sim::trace::CsvRows;
+
+/// The plot keeps at most about this many points of a long run.
+const PLOT_POINTS: f64 = 100_000.0;
 use crate::results::report;
 use crate::scenario::Scenario;
 
@@ -62,10 +66,68 @@ pub fn run(args: &SimulateArgs) -> i32 {
         &format!("simulating {}", scenario.name),
         !args.quiet && !args.json,
     );
-    let result = report::run(scenario, prepared.designed.as_ref(), &mut |f| bar.update(f));
+    // The CSV is written as the run goes; memory keeps only what the plot needs.
+    let stem = super::file_stem(&scenario.name);
+    let csv_path = args.out.join(format!("{stem}.csv"));
+    let csv_file = match super::create_out_dir(&args.out).and_then(|()| {
+        std::fs::File::create(&csv_path).map_err(|e| {
+            format!(
+                "cannot write {}: {e}; check the folder given with --out",
+                csv_path.display()
+            )
+        })
+    }) {
+        Ok(f) => f,
+        Err(e) => {
+            eprintln!("ampwright: {e}");
+            return 2;
+        }
+    };
+    let mut sink = std::io::BufWriter::new(csv_file);
+    let every = scenario.record_every_ticks;
+    let kept = (plan.rows / PLOT_POINTS).ceil().max(1.0) as u64;
+    let result = {
+        let mut rows = CsvRows::new(&mut sink);
+        let mut tick = 0u64;
+        let mut failed: Option<std::io::Error> = None;
+        let run = report::run_streaming(
+            scenario,
+            prepared.designed.as_ref(),
+            &mut |f| bar.update(f),
+            every * kept,
+            &mut |p| {
+                if tick.is_multiple_of(every)
+                    && failed.is_none()
+                    && let Ok(r) = rows.as_mut()
+                    && let Err(e) = r.row(p)
+                {
+                    failed = Some(e);
+                }
+                tick += 1;
+            },
+        );
+        let finished = match rows {
+            Ok(r) if failed.is_none() => r.finish(),
+            Ok(_) => Err(failed.unwrap_or_else(|| std::io::Error::other("write failed"))),
+            Err(e) => Err(e),
+        };
+        finished
+            .and_then(|()| sink.flush())
+            .map_err(|e| {
+                format!(
+                    "cannot write {}: {e}; check the folder given with --out",
+                    csv_path.display()
+                )
+            })
+            .map(|()| run)
+    };
     bar.finish();
     let (mut trace, rep) = match result {
-        Ok(r) => r,
+        Ok(Ok(r)) => r,
+        Ok(Err(e)) => {
+            eprintln!("ampwright: {e}");
+            return 2;
+        }
         Err(e) => {
             eprintln!("ampwright: {e}");
             return 2;
@@ -86,6 +148,13 @@ pub fn run(args: &SimulateArgs) -> i32 {
         }
     }
     let written = match write_files(args, scenario, &trace, &rep) {
+        Ok(mut w) => {
+            w.insert(0, csv_path.display().to_string());
+            Ok(w)
+        }
+        Err(e) => Err(e),
+    };
+    let written = match written {
         Ok(w) => w,
         Err(e) => {
             eprintln!("ampwright: {e}");
@@ -120,9 +189,6 @@ fn write_files(
     super::create_out_dir(dir)?;
     let stem = super::file_stem(&scenario.name);
     let mut written = Vec::new();
-    let csv = dir.join(format!("{stem}.csv"));
-    super::write_with(&csv, |f| trace.write_csv(f))?;
-    written.push(csv.display().to_string());
     let svg = dir.join(format!("{stem}.svg"));
     let doc = step_response_svg(trace, &StepPlot::of(scenario, rep));
     super::write_with(&svg, |f| f.write_all(doc.as_bytes()))?;

@@ -176,12 +176,33 @@ pub fn run(
     designed: Option<&Designed>,
     progress: &mut dyn FnMut(f64),
 ) -> Result<(Trace, Report), ScenarioError> {
-    let (mut cl, mut runner) = scenario.start()?;
+    run_streaming(
+        scenario,
+        designed,
+        progress,
+        scenario.record_every_ticks,
+        &mut |_| {},
+    )
+}
+
+/// [`run`], handing every tick's point to `each` as it is made (to write the
+/// CSV without keeping it) and keeping in memory only one point in
+/// `keep_every` ticks (for the plots).
+pub fn run_streaming(
+    scenario: &Scenario,
+    designed: Option<&Designed>,
+    progress: &mut dyn FnMut(f64),
+    keep_every: u64,
+    each: &mut dyn FnMut(&crate::sim::trace::TracePoint),
+) -> Result<(Trace, Report), ScenarioError> {
+    let (mut cl, runner) = scenario.start()?;
+    let mut runner = runner.record_every(keep_every);
     let limits = scenario.loop_config.setpoint();
     let mut summary =
         Summary::new(limits.min_a() as f64, limits.max_a() as f64).with_duty_limit(scenario.max_duty);
     runner.run_observed(&mut cl, scenario.duration_s, progress, &mut |p, note| {
-        summary.observe(p, note)
+        summary.observe(p, note);
+        each(p);
     });
     summary.finish();
     let trace = runner.into_trace();

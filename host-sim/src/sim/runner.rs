@@ -187,6 +187,9 @@ impl Runner {
     /// Runs `ticks` control ticks.
     pub fn run_ticks(&mut self, controller: &mut dyn Controller, ticks: u64) {
         let end = self.period + ticks * self.timing.periods_per_tick();
+        self.trace
+            .points
+            .reserve(usize::try_from(ticks / self.record_every + 1).unwrap_or(0));
         while self.period < end {
             self.step_period(controller);
         }

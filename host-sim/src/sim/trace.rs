@@ -112,29 +112,43 @@ fn pow10(e: i32) -> f64 {
 /// Appends `v` with `digits` significant digits in scientific notation,
 /// trailing zeros dropped (`1.5e0`, `-2.25e-3`, `0`), or `NaN`, `inf`, `-inf`.
 pub fn put_real(buf: &mut Vec<u8>, v: f64, digits: usize) {
+    let mut out = [0u8; REAL_MAX];
+    let n = real_into(&mut out, 0, v, digits);
+    buf.extend_from_slice(&out[..n]);
+}
+
+/// The longest text [`real_into`] writes, bytes.
+const REAL_MAX: usize = 32;
+
+/// Writes `v` as [`put_real`] does into `out` from `at`; returns the end.
+/// Every digit goes straight to its place: no temporary, no copy.
+fn real_into(out: &mut [u8], at: usize, v: f64, digits: usize) -> usize {
+    let mut n = at;
     if v == 0.0 {
-        buf.push(b'0');
-        return;
+        out[n] = b'0';
+        return n + 1;
     }
     if !v.is_finite() {
-        buf.extend_from_slice(if v.is_nan() {
+        let text: &[u8] = if v.is_nan() {
             b"NaN"
         } else if v > 0.0 {
             b"inf"
         } else {
             b"-inf"
-        });
-        return;
-    }
-    if v < 0.0 {
-        buf.push(b'-');
+        };
+        for &c in text {
+            out[n] = c;
+            n += 1;
+        }
+        return n;
     }
     let a = v.abs();
     let digits = digits.clamp(1, 17) as i32;
-    // The decimal exponent from the binary one (log10(2) = 0.30103), then
-    // corrected against the table: no logarithm.
+    // The decimal exponent from the binary one: floor(b log10 2) is
+    // (b 1233) >> 12 to within one, then corrected against the table (no
+    // logarithm, no floor call).
     let bits = ((a.to_bits() >> 52) & 0x7ff) as i32 - 1023;
-    let mut e = ((bits as f64) * std::f64::consts::LOG10_2).floor() as i32;
+    let mut e = (bits * 1233) >> 12;
     while a >= pow10(e + 1) {
         e += 1;
     }
@@ -149,23 +163,49 @@ pub fn put_real(buf: &mut Vec<u8>, v: f64, digits: usize) {
         a / pow10(-shift)
     };
     let mut m = (scaled + 0.5) as u64;
+    let mut count = digits as usize;
     if m >= top {
         m /= 10;
         e += 1;
     }
-    let mut d = [0u8; 20];
-    let start = digits_of(m, &mut d);
-    let mut last = 20;
-    while last > start + 1 && d[last - 1] == b'0' {
-        last -= 1;
+    // Trailing zeros dropped: fewer digits to write.
+    while count > 1 && m.is_multiple_of(10) {
+        m /= 10;
+        count -= 1;
     }
-    buf.push(d[start]);
-    if last > start + 1 {
-        buf.push(b'.');
-        buf.extend_from_slice(&d[start + 1..last]);
+    if v < 0.0 {
+        out[n] = b'-';
+        n += 1;
     }
-    buf.push(b'e');
-    put_int(buf, e as i64);
+    // "d" or "d.ddd": the first digit, then the point when more follow. The
+    // fraction's digits are written from the end, two at a time.
+    let end = if count > 1 { n + count + 1 } else { n + 1 };
+    let mut k = end;
+    let mut x = m;
+    while k >= n + 4 {
+        let pair = (x % 100) as usize * 2;
+        x /= 100;
+        k -= 2;
+        out[k] = PAIRS[pair];
+        out[k + 1] = PAIRS[pair + 1];
+    }
+    if k > n + 2 {
+        k -= 1;
+        out[k] = b'0' + (x % 10) as u8;
+        x /= 10;
+    }
+    if count > 1 {
+        out[n + 1] = b'.';
+    }
+    out[n] = b'0' + x as u8;
+    n = end;
+    out[n] = b'e';
+    n += 1;
+    if e < 0 {
+        out[n] = b'-';
+        n += 1;
+    }
+    int_into(out, n, e.unsigned_abs() as u64)
 }
 
 /// "00" to "99", for two digits at a time.
@@ -180,93 +220,117 @@ static PAIRS: [u8; 200] = {
     t
 };
 
-/// The decimal digits of `x` into the end of `d`; returns where they start.
-fn digits_of(x: u64, d: &mut [u8; 20]) -> usize {
-    let mut end = 20;
-    // Most mantissas fit 32 bits, whose divisions are cheaper.
-    if let Ok(small) = u32::try_from(x) {
-        let mut x = small;
-        while x >= 100 {
-            let k = (x % 100) as usize * 2;
-            x /= 100;
-            end -= 2;
-            d[end] = PAIRS[k];
-            d[end + 1] = PAIRS[k + 1];
+/// Writes an unsigned integer into `out` from `at`; returns the end.
+fn int_into(out: &mut [u8], at: usize, v: u64) -> usize {
+    let mut len = 1;
+    let mut t = v;
+    while t >= 10 {
+        t /= 10;
+        len += 1;
+    }
+    let mut k = at + len;
+    let mut x = v;
+    loop {
+        k -= 1;
+        out[k] = b'0' + (x % 10) as u8;
+        x /= 10;
+        if k == at {
+            break;
         }
-        return last_digits(x as u64, d, end);
     }
-    let mut x = x;
-    while x >= 100 {
-        let k = (x % 100) as usize * 2;
-        x /= 100;
-        end -= 2;
-        d[end] = PAIRS[k];
-        d[end + 1] = PAIRS[k + 1];
-    }
-    last_digits(x, d, end)
-}
-
-/// The last one or two digits (`x < 100`) in front of `end`.
-fn last_digits(x: u64, d: &mut [u8; 20], mut end: usize) -> usize {
-    if x >= 10 {
-        let k = x as usize * 2;
-        end -= 2;
-        d[end] = PAIRS[k];
-        d[end + 1] = PAIRS[k + 1];
-    } else {
-        end -= 1;
-        d[end] = b'0' + x as u8;
-    }
-    end
+    at + len
 }
 
 /// Appends an integer.
 pub fn put_int(buf: &mut Vec<u8>, v: i64) {
+    let mut out = [0u8; 24];
+    let mut n = 0;
     if v < 0 {
-        buf.push(b'-');
+        out[0] = b'-';
+        n = 1;
     }
-    let mut d = [0u8; 20];
-    let start = digits_of(v.unsigned_abs(), &mut d);
-    buf.extend_from_slice(&d[start..]);
+    let n = int_into(&mut out, n, v.unsigned_abs());
+    buf.extend_from_slice(&out[..n]);
+}
+
+/// Writes trace points as CSV rows as they come (header [`CSV_HEADER`], SI
+/// units, `.` decimal point; time to [`TIME_DIGITS`] and the other reals to
+/// [`VALUE_DIGITS`] significant digits), gathering them in one buffer handed
+/// over in large writes. A run can stream its rows through it without
+/// keeping them.
+pub struct CsvRows<'a> {
+    out: &'a mut dyn Write,
+    buf: Vec<u8>,
+}
+
+/// The buffer size of [`CsvRows`], bytes.
+const CSV_BUFFER: usize = 1 << 17;
+/// The longest row: 11 reals, 4 integers, separators.
+const ROW_MAX: usize = 16 * REAL_MAX;
+
+impl<'a> CsvRows<'a> {
+    /// Starts the file: writes the header.
+    pub fn new(out: &'a mut dyn Write) -> io::Result<Self> {
+        writeln!(out, "{CSV_HEADER}")?;
+        Ok(Self {
+            out,
+            buf: Vec::with_capacity(CSV_BUFFER),
+        })
+    }
+
+    /// One row.
+    pub fn row(&mut self, p: &TracePoint) -> io::Result<()> {
+        if self.buf.len() > CSV_BUFFER - ROW_MAX {
+            self.out.write_all(&self.buf)?;
+            self.buf.clear();
+        }
+        let mut row = [0u8; ROW_MAX];
+        let mut n = real_into(&mut row, 0, p.t_s, TIME_DIGITS);
+        let sep = |n: usize, row: &mut [u8; ROW_MAX]| {
+            row[n] = b',';
+            n + 1
+        };
+        for v in [p.request_a, p.setpoint_a, p.current_a, p.measured_a] {
+            n = sep(n, &mut row);
+            n = real_into(&mut row, n, v, VALUE_DIGITS);
+        }
+        n = sep(n, &mut row);
+        n = int_into(&mut row, n, p.counts as u64);
+        for v in [p.commanded_v, p.duty] {
+            n = sep(n, &mut row);
+            n = real_into(&mut row, n, v, VALUE_DIGITS);
+        }
+        n = sep(n, &mut row);
+        n = int_into(&mut row, n, u64::from(p.enabled));
+        for v in [p.speed_rad_s, p.bus_v, p.supply_a, p.winding_c] {
+            n = sep(n, &mut row);
+            n = real_into(&mut row, n, v, VALUE_DIGITS);
+        }
+        n = sep(n, &mut row);
+        n = int_into(&mut row, n, p.fault_bits as u64);
+        n = sep(n, &mut row);
+        n = int_into(&mut row, n, p.state as u64);
+        row[n] = b'\n';
+        self.buf.extend_from_slice(&row[..n + 1]);
+        Ok(())
+    }
+
+    /// Hands over what is left.
+    pub fn finish(mut self) -> io::Result<()> {
+        self.out.write_all(&self.buf)?;
+        self.buf.clear();
+        Ok(())
+    }
 }
 
 impl Trace {
-    /// Writes the per-tick points as CSV (header [`CSV_HEADER`], SI units,
-    /// `.` decimal point, one row per kept tick; time to [`TIME_DIGITS`] and
-    /// the other reals to [`VALUE_DIGITS`] significant digits).
+    /// Writes the kept points as CSV (see [`CsvRows`]).
     pub fn write_csv(&self, out: &mut dyn Write) -> io::Result<()> {
-        writeln!(out, "{CSV_HEADER}")?;
-        // Rows gather in one buffer handed over in large writes.
-        let mut row = Vec::with_capacity(1 << 17);
+        let mut rows = CsvRows::new(out)?;
         for p in &self.points {
-            if row.len() > (1 << 17) - 512 {
-                out.write_all(&row)?;
-                row.clear();
-            }
-            put_real(&mut row, p.t_s, TIME_DIGITS);
-            for v in [p.request_a, p.setpoint_a, p.current_a, p.measured_a] {
-                row.push(b',');
-                put_real(&mut row, v, VALUE_DIGITS);
-            }
-            row.push(b',');
-            put_int(&mut row, p.counts as i64);
-            for v in [p.commanded_v, p.duty] {
-                row.push(b',');
-                put_real(&mut row, v, VALUE_DIGITS);
-            }
-            row.push(b',');
-            put_int(&mut row, i64::from(p.enabled));
-            for v in [p.speed_rad_s, p.bus_v, p.supply_a, p.winding_c] {
-                row.push(b',');
-                put_real(&mut row, v, VALUE_DIGITS);
-            }
-            row.push(b',');
-            put_int(&mut row, p.fault_bits as i64);
-            row.push(b',');
-            put_int(&mut row, p.state as i64);
-            row.push(b'\n');
+            rows.row(p)?;
         }
-        out.write_all(&row)
+        rows.finish()
     }
 
     /// Writes the edge points as CSV (`t_s,current_a,terminal_v`).
