@@ -177,14 +177,26 @@ fn a_run_whose_trace_would_not_fit_is_refused_with_the_setting_that_fixes_it() {
     let plan = host_sim::results::plan::Plan::of(&s);
     assert_eq!(plan.ticks, 1e8);
     let why = plan.refusal(1).unwrap();
-    assert!(why.contains("set record_every_ticks to 9 or more"), "{why}");
-    // The suggested setting fits.
-    let thinned = edited(
-        &huge,
-        &[("duration_s", "duration_s = 5000.0\nrecord_every_ticks = 9")],
-    );
-    let s = Params::from_toml(&thinned, "t").unwrap().build().unwrap();
-    assert_eq!(host_sim::results::plan::Plan::of(&s).refusal(9), None);
+    let suggested: u64 = why
+        .split("set record_every_ticks to ")
+        .nth(1)
+        .and_then(|r| r.split(' ').next())
+        .and_then(|n| n.parse().ok())
+        .unwrap_or_else(|| panic!("{why}"));
+    // The suggested setting fits, and one less does not.
+    let with_every = |every: u64| {
+        let text = edited(
+            &huge,
+            &[(
+                "duration_s",
+                &format!("duration_s = 5000.0\nrecord_every_ticks = {every}"),
+            )],
+        );
+        let s = Params::from_toml(&text, "t").unwrap().build().unwrap();
+        host_sim::results::plan::Plan::of(&s).refusal(every)
+    };
+    assert_eq!(with_every(suggested), None);
+    assert!(with_every(suggested - 1).is_some());
     // On the command line: exit 2, before anything runs.
     let dir = ampwright_tests::temp_dir("huge-run");
     let path = dir.join("huge.toml");

@@ -154,7 +154,7 @@ fn simulate_command_writes_csv_and_svg_and_exits_0() {
     assert_eq!(csv.lines().count(), 1 + 400, "a header and one row per tick");
     let svg = std::fs::read_to_string(out.join("carousel-step.svg")).unwrap();
     assert!(svg.starts_with("<svg") && svg.trim_end().ends_with("</svg>"));
-    assert!(svg.contains("2 % band") && svg.contains("polyline"));
+    assert!(svg.contains("2 % settling band") && svg.contains("polyline"));
 }
 
 #[test]

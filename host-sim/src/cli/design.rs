@@ -49,6 +49,9 @@ pub struct DesignArgs {
     /// Print the report as JSON instead of the table.
     #[arg(long)]
     pub json: bool,
+    /// Overlay every other stable method's frequency response on the chosen one's.
+    #[arg(long)]
+    pub overlay_methods: bool,
 }
 
 impl DesignArgs {
@@ -115,24 +118,24 @@ fn write_files(args: &DesignArgs, report: &DesignReport) -> Result<Vec<String>, 
         put(format!("{stem}-gains.rs"), snippet)?;
     }
     put(format!("{stem}-design.json"), report.json() + "\n")?;
-    if let (Some(l), Some(m)) = (report.survey.chosen_loop(), report.chosen()) {
+    if let Some(p) = report.survey.pictures(args.overlay_methods) {
         put(
             format!("{stem}-root-locus.svg"),
             root_locus_svg(
-                &format!("{}: root locus in z ({})", report.name, m.method),
-                &l.plant,
-                &l.sampling,
-                &l.gains,
-                Some(l.target),
+                &format!("{}: root locus in z ({})", report.name, p.method),
+                &p.locus,
+                Some(p.desired),
             ),
         )?;
+        let others: Vec<(&str, &[crate::tuning::locus::BodePoint])> =
+            p.others.iter().map(|(n, v)| (*n, v.as_slice())).collect();
         put(
             format!("{stem}-frequency-response.svg"),
             frequency_response_svg(
-                &format!("{}: open-loop frequency response ({})", report.name, m.method),
-                &l.open,
-                report.survey.basis.period_s,
-                &l.margins,
+                &format!("{}: open-loop frequency response ({})", report.name, p.method),
+                (p.method, &p.bode),
+                &p.margins,
+                &others,
             ),
         )?;
     }

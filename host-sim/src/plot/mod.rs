@@ -7,4 +7,4 @@ pub mod svg;
 
 pub use frequency_response::frequency_response_svg;
 pub use root_locus::root_locus_svg;
-pub use step_response::{StepPlot, step_response_svg};
+pub use step_response::{PlotEvent, StepPlot, step_response_svg};

@@ -150,6 +150,7 @@ mod tests {
             winding_c: 20.0,
             fault_bits: 0,
             state: 1,
+            i2t_level: 0.0,
         }
     }
 

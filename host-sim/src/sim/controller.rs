@@ -31,6 +31,9 @@ pub struct ControllerView {
     pub fault_bits: u16,
     /// 0 disabled, 1 running, 2 faulted.
     pub state: u8,
+    /// The I^2t model's heat as a fraction of its trip level (1 trips; 0
+    /// when the protection is off).
+    pub i2t_level: f64,
 }
 
 /// A controller the runner can close the loop with.
@@ -71,6 +74,10 @@ impl Controller for CurrentLoop {
                 LoopState::Running => 1,
                 LoopState::Faulted => 2,
             },
+            i2t_level: self
+                .supervisor()
+                .thermal()
+                .map_or(0.0, |t| (t.heat() / t.trip_level()) as f64),
         }
     }
 }
@@ -128,6 +135,7 @@ impl Controller for LinearPi {
             commanded_v: self.volts as f64,
             fault_bits: 0,
             state: 1,
+            i2t_level: 0.0,
         }
     }
 }

@@ -440,6 +440,7 @@ impl Runner {
             winding_c: self.chain.motor.temperature_c(),
             fault_bits: view.fault_bits,
             state: view.state,
+            i2t_level: view.i2t_level,
         };
         if keep {
             self.trace.points.push(point);

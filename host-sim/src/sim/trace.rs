@@ -37,6 +37,8 @@ pub struct TracePoint {
     pub fault_bits: u16,
     /// The controller's state: 0 disabled, 1 running, 2 faulted.
     pub state: u8,
+    /// The I^2t model's heat as a fraction of its trip level (0: off).
+    pub i2t_level: f64,
 }
 
 /// The current at a PWM edge (switching mode only, when asked for).
@@ -71,7 +73,7 @@ pub struct Trace {
 }
 
 /// The CSV header of [`Trace::write_csv`].
-pub const CSV_HEADER: &str = "t_s,request_a,setpoint_a,current_a,measured_a,counts,commanded_v,duty,enabled,speed_rad_s,bus_v,supply_a,winding_c,fault_bits,state";
+pub const CSV_HEADER: &str = "t_s,request_a,setpoint_a,current_a,measured_a,counts,commanded_v,duty,enabled,speed_rad_s,bus_v,supply_a,winding_c,fault_bits,state,i2t_level";
 
 /// Significant digits of the time column (a 150 s run at 50 us keeps every tick apart).
 pub const TIME_DIGITS: usize = 12;
@@ -265,8 +267,8 @@ pub struct CsvRows<'a> {
 
 /// The buffer size of [`CsvRows`], bytes.
 const CSV_BUFFER: usize = 1 << 17;
-/// The longest row: 11 reals, 4 integers, separators.
-const ROW_MAX: usize = 16 * REAL_MAX;
+/// The longest row: 12 reals, 4 integers, separators.
+const ROW_MAX: usize = 17 * REAL_MAX;
 
 impl<'a> CsvRows<'a> {
     /// Starts the file: writes the header.
@@ -310,6 +312,8 @@ impl<'a> CsvRows<'a> {
         n = int_into(&mut row, n, p.fault_bits as u64);
         n = sep(n, &mut row);
         n = int_into(&mut row, n, p.state as u64);
+        n = sep(n, &mut row);
+        n = real_into(&mut row, n, p.i2t_level, VALUE_DIGITS);
         row[n] = b'\n';
         self.buf.extend_from_slice(&row[..n + 1]);
         Ok(())

@@ -9,6 +9,7 @@
 //! The designs run in f64 here and in f32 on the device, through the same code.
 
 pub mod basis;
+pub mod locus;
 pub mod survey;
 pub mod table;
 

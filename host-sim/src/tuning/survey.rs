@@ -356,41 +356,61 @@ fn analyse(
     r
 }
 
-/// The chosen design's loop, for the pictures.
-#[derive(Clone, Copy, Debug)]
-pub struct ChosenLoop {
-    /// The open loop.
-    pub open: OpenLoop<f64>,
-    /// The winding.
-    pub plant: pi_core::design::RlPlant<f64>,
-    /// The sampling.
-    pub sampling: Sampling<f64>,
-    /// The gains.
-    pub gains: Gains<f64>,
+/// What the design pictures draw, all computed here.
+#[derive(Clone, Debug)]
+pub struct Pictures {
+    /// The chosen method's name.
+    pub method: &'static str,
+    /// The root locus of the chosen gains.
+    pub locus: super::locus::Locus,
+    /// The spec's dominant pole in z (upper half).
+    pub desired: (f64, f64),
+    /// The chosen loop's frequency response.
+    pub bode: Vec<super::locus::BodePoint>,
     /// Its margins.
     pub margins: analysis::Margins<f64>,
-    /// The spec's dominant pole in z (upper half).
-    pub target: (f64, f64),
+    /// The other stable methods' frequency responses, when asked for.
+    pub others: Vec<(&'static str, Vec<super::locus::BodePoint>)>,
 }
 
 impl Survey {
-    /// The chosen design's loop, if a method was chosen.
-    pub fn chosen_loop(&self) -> Option<ChosenLoop> {
+    /// The pictures' numbers for the chosen design (`None` if none was
+    /// chosen); `overlay` adds every other method's frequency response.
+    pub fn pictures(&self, overlay: bool) -> Option<Pictures> {
         let m = self.chosen()?;
         let b = &self.basis;
         let (plant, sampling, spec) = (b.plant().ok()?, b.sampling().ok()?, b.spec().ok()?);
-        let gains = Gains {
-            kp_v_per_a: m.kp_v_per_a?,
-            ti_s: m.ti_s?,
+        let gains_of = |r: &MethodResult| {
+            Some(Gains {
+                kp_v_per_a: r.kp_v_per_a?,
+                ti_s: r.ti_s?,
+            })
         };
+        let gains = gains_of(m)?;
         let open = OpenLoop::new(&plant, &sampling, &gains);
-        Some(ChosenLoop {
-            open,
-            plant,
-            sampling,
-            gains,
-            margins: analysis::margins(&open, b.period_s, GRID_POINTS),
-            target: pi_core::design::discrete::target_pole(&spec, b.period_s),
+        let margins = analysis::margins(&open, b.period_s, GRID_POINTS);
+        let f_lo = margins
+            .crossover_hz
+            .map_or(1.0, |f| (f / 100.0).max(1e-3))
+            .min(0.5e-4 / b.period_s);
+        let sweep =
+            |g: &Gains<f64>| super::locus::bode(&OpenLoop::new(&plant, &sampling, g), b.period_s, f_lo, 800);
+        let others = if overlay {
+            self.methods
+                .iter()
+                .filter(|r| r.method != m.method && r.stable)
+                .filter_map(|r| Some((r.method, sweep(&gains_of(r)?))))
+                .collect()
+        } else {
+            Vec::new()
+        };
+        Some(Pictures {
+            method: m.method,
+            locus: super::locus::locus(&plant, &sampling, &gains),
+            desired: pi_core::design::discrete::target_pole(&spec, b.period_s),
+            bode: sweep(&gains),
+            margins,
+            others,
         })
     }
 }
