@@ -5,10 +5,13 @@ use std::io::Write;
 use std::path::PathBuf;
 
 use crate::cli::progress::Progress;
-use crate::plot::{StepPlot, step_response_svg};
+use crate::plot::{StepPlot, long_run_svg, step_response_svg};
 use crate::prepare;
 use crate::results::plan::Plan;
 use crate::sim::trace::CsvRows;
+
+/// A run this long or longer gets the thermal picture, s.
+const LONG_RUN_S: f64 = 1.0;
 
 /// The plot keeps at most about this many points of a long run.
 const PLOT_POINTS: f64 = 100_000.0;
@@ -193,6 +196,19 @@ fn write_files(
     let doc = step_response_svg(trace, &StepPlot::of(scenario, rep));
     super::write_with(&svg, |f| f.write_all(doc.as_bytes()))?;
     written.push(svg.display().to_string());
+    // A long run where heat matters gets its own picture.
+    let heats = scenario.chain.motor.params().thermal.is_some()
+        || scenario.loop_config.supervisor().thermal().is_some();
+    if heats && scenario.duration_s >= LONG_RUN_S {
+        let path = dir.join(format!("{stem}-thermal.svg"));
+        let doc = long_run_svg(
+            &format!("{}: winding temperature and I^2t over the run", rep.name),
+            trace,
+            rep.first_fault.as_ref().map(|(w, t)| (w.as_str(), *t)),
+        );
+        super::write_with(&path, |f| f.write_all(doc.as_bytes()))?;
+        written.push(path.display().to_string());
+    }
     if args.edges {
         let edges = dir.join(format!("{stem}-edges.csv"));
         super::write_with(&edges, |f| trace.write_edges_csv(f))?;

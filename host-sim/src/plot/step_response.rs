@@ -125,13 +125,21 @@ impl StepPlot {
     }
 }
 
-/// The duty axis with its zero at the same height as the current's: the
-/// current axis `[lo, hi]` must contain 0; the duty axis then spans at least
-/// `+/- 1.05` with 0 at the same fraction.
-pub fn aligned_duty_axis(lo: f64, hi: f64) -> (f64, f64) {
-    let f0 = ((0.0 - lo) / (hi - lo)).clamp(0.05, 0.95);
-    let span = (1.05 / f0).max(1.05 / (1.0 - f0));
-    (-f0 * span, (1.0 - f0) * span)
+/// Two axes with their zeros at the same height: the current's `[lo, hi]`
+/// and the duty's `[dlo, dhi]` (each containing 0) are widened downward or
+/// upward as little as needed so that 0 sits at the same fraction of both.
+pub fn aligned_zero(current: (f64, f64), duty: (f64, f64)) -> ((f64, f64), (f64, f64)) {
+    let frac = |(lo, hi): (f64, f64)| ((0.0 - lo) / (hi - lo)).clamp(0.0, 1.0);
+    let f = frac(current).max(frac(duty)).clamp(0.05, 0.95);
+    // Keep each axis's top (or bottom, when that is what it needs) and put 0 at f.
+    let fit = |(lo, hi): (f64, f64)| {
+        if frac((lo, hi)) < f {
+            (-f * hi / (1.0 - f), hi)
+        } else {
+            (lo, -lo * (1.0 - f) / f)
+        }
+    };
+    (fit(current), fit(duty))
 }
 
 /// The SVG document.
@@ -156,14 +164,27 @@ pub fn step_response_svg(trace: &Trace, plot: &StepPlot) -> String {
             }
         }
     }
-    let (ylo, yhi) = padded(lo, hi, 0.12);
+    // The duty axis spans the duty drawn, and the limit on each side where
+    // the duty goes more than a twentieth of the way to it.
+    let md = plot.max_duty.unwrap_or(1.0);
+    let (dmin, dmax) = pts
+        .iter()
+        .fold((0.0f64, 0.0f64), |(a, b), p| (a.min(p.duty), b.max(p.duty)));
+    let side = |d: f64| {
+        if d.abs() > 0.05 * md {
+            md.max(d.abs()) * 1.05
+        } else {
+            d.abs() * 1.05 + 0.01
+        }
+    };
+    let dspan = (-side(dmin), side(dmax));
+    let ((ylo, yhi), (dlo, dhi)) = aligned_zero(padded(lo, hi, 0.12), dspan);
     let y = Axis {
         lo: ylo,
         hi: yhi,
         px_lo: bottom,
         px_hi: top,
     };
-    let (dlo, dhi) = aligned_duty_axis(ylo, yhi);
     let duty = Axis {
         lo: dlo,
         hi: dhi,
@@ -252,7 +273,7 @@ pub fn step_response_svg(trace: &Trace, plot: &StepPlot) -> String {
         }
     }
     if let Some(d) = plot.max_duty {
-        for v in [d, -d] {
+        for v in [d, -d].into_iter().filter(|v| *v >= dlo && *v <= dhi) {
             c.series(
                 "duty limits",
                 &[(left, duty.px(v)), (right, duty.px(v))],

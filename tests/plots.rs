@@ -1,0 +1,144 @@
+//! The pictures, parsed: every legend entry names something drawn and every
+//! drawn series is in the legend; no two texts overlap (boxes estimated the
+//! way the canvas places them); the step plot's ticks include the levels the
+//! steps go to and its two axes share their zero.
+
+use std::collections::BTreeSet;
+
+use host_sim::plot::svg::{overlaps, text_width};
+use host_sim::plot::{StepPlot, frequency_response_svg, long_run_svg, root_locus_svg, step_response_svg};
+use host_sim::prepare::{self, Overrides};
+use host_sim::results::report;
+use host_sim::scenario::Params;
+
+const DEMO: &str = include_str!("../host-sim/scenarios/carousel_step.toml");
+const JAM: &str = include_str!("../host-sim/scenarios/carousel_jam.toml");
+
+/// The value of `name="..."` inside one element's text.
+fn attr<'a>(element: &'a str, name: &str) -> Option<&'a str> {
+    let key = format!(" {name}=\"");
+    let start = element.find(&key)? + key.len();
+    element[start..].split('"').next()
+}
+
+/// Each element (`<tag ...>`) with its text content when it is a `<text>`.
+fn elements(svg: &str) -> Vec<(String, Option<String>)> {
+    let mut out = Vec::new();
+    let mut rest = svg;
+    while let Some(k) = rest.find('<') {
+        rest = &rest[k..];
+        let end = rest.find('>').unwrap();
+        let el = rest[..=end].to_string();
+        rest = &rest[end + 1..];
+        let text = if el.starts_with("<text") {
+            let close = rest.find("</text>").unwrap();
+            let t = rest[..close].to_string();
+            rest = &rest[close..];
+            Some(t.replace("&amp;", "&").replace("&lt;", "<").replace("&gt;", ">"))
+        } else {
+            None
+        };
+        out.push((el, text));
+    }
+    out
+}
+
+fn check(name: &str, svg: &str) {
+    let els = elements(svg);
+    let series: BTreeSet<&str> = els.iter().filter_map(|(e, _)| attr(e, "data-series")).collect();
+    let legend: BTreeSet<&str> = els.iter().filter_map(|(e, _)| attr(e, "data-legend")).collect();
+    assert!(!series.is_empty(), "{name}: nothing drawn");
+    assert_eq!(series, legend, "{name}: drawn series and legend entries");
+    let mut boxes = Vec::new();
+    for (e, t) in &els {
+        let Some(t) = t else { continue };
+        if e.contains("transform=") || t.is_empty() {
+            continue; // the rotated axis titles stand alone at the sides
+        }
+        let x: f64 = attr(e, "x").unwrap().parse().unwrap();
+        let y: f64 = attr(e, "y").unwrap().parse().unwrap();
+        let size: f64 = attr(e, "font-size").unwrap().parse().unwrap();
+        let w = text_width(t.chars().count(), size);
+        let x0 = match attr(e, "text-anchor") {
+            Some("middle") => x - w / 2.0,
+            Some("end") => x - w,
+            _ => x,
+        };
+        let b = (x0, y - size, x0 + w, y + 0.25 * size);
+        for (other, ob) in &boxes {
+            assert!(!overlaps(*ob, b), "{name}: {t:?} overlaps {other:?}");
+        }
+        boxes.push((t.clone(), b));
+    }
+}
+
+#[test]
+fn the_step_response_is_consistent_and_its_axes_share_their_zero() {
+    let s = Params::from_toml(DEMO, "t").unwrap().build().unwrap();
+    let (trace, rep) = report::run(&s, None, &mut |_| {}).unwrap();
+    let svg = step_response_svg(&trace, &StepPlot::of(&s, &rep));
+    check("step response", &svg);
+    let ticks: Vec<f64> = elements(&svg)
+        .iter()
+        .filter_map(|(e, _)| attr(e, "data-tick-y"))
+        .map(|v| v.parse().unwrap())
+        .collect();
+    for level in [0.0, 1.5, -1.0] {
+        assert!(ticks.contains(&level), "{level} not among {ticks:?}");
+    }
+    // The same zero: the "0" labels of both y axes (not the time axis's,
+    // which is centred under its tick) on one line.
+    let zeros: Vec<f64> = elements(&svg)
+        .iter()
+        .filter(|(e, t)| t.as_deref() == Some("0") && attr(e, "text-anchor") != Some("middle"))
+        .map(|(e, _)| attr(e, "y").unwrap().parse().unwrap())
+        .collect();
+    assert!(
+        zeros.len() >= 2 && zeros.iter().all(|y| (y - zeros[0]).abs() < 0.5),
+        "{zeros:?}"
+    );
+}
+
+#[test]
+fn the_long_run_picture_is_consistent_and_marks_the_trip() {
+    let short = JAM
+        .lines()
+        .map(|l| {
+            if l.starts_with("duration_s") {
+                "duration_s = 2.0".to_string()
+            } else if l.starts_with("trip_class") {
+                "thermal_time_constant_s = 1.0".to_string()
+            } else if l.starts_with("trip_after_s") || l.starts_with("trip_before_s") {
+                String::new()
+            } else {
+                l.to_string()
+            }
+        })
+        .collect::<Vec<_>>()
+        .join("\n");
+    let s = Params::from_toml(&short, "t").unwrap().build().unwrap();
+    let (trace, rep) = report::run(&s, None, &mut |_| {}).unwrap();
+    let (what, t) = rep.first_fault.clone().unwrap();
+    let svg = long_run_svg("jam", &trace, Some((&what, t)));
+    check("long run", &svg);
+    assert!(svg.contains("first fault") && svg.contains("trip level"));
+}
+
+#[test]
+fn the_design_pictures_are_consistent() {
+    let params = Params::from_toml(DEMO, "t").unwrap();
+    let r = prepare::design(&params, &Overrides::default()).unwrap();
+    let p = r.survey.pictures(true).unwrap();
+    let locus = root_locus_svg("locus", &p.locus, Some(p.desired));
+    check("root locus", &locus);
+    assert!(
+        locus.contains("unstable beyond this Kp"),
+        "the crossing is marked"
+    );
+    let others: Vec<(&str, &[host_sim::tuning::locus::BodePoint])> =
+        p.others.iter().map(|(n, v)| (*n, v.as_slice())).collect();
+    assert_eq!(others.len(), 3, "every other method overlaid");
+    let bode = frequency_response_svg("bode", (p.method, &p.bode), &p.margins, &others);
+    check("frequency response", &bode);
+    assert!(bode.contains("gain margin") && bode.contains("phase margin"));
+}
