@@ -142,3 +142,44 @@ fn the_design_pictures_are_consistent() {
     check("frequency response", &bode);
     assert!(bode.contains("gain margin") && bode.contains("phase margin"));
 }
+
+#[test]
+fn the_report_pages_are_self_contained_with_their_pictures_inline() {
+    let dir = ampwright_tests::temp_dir("report-pages");
+    let demo =
+        std::path::PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("../host-sim/scenarios/carousel_step.toml");
+    let out = dir.to_str().unwrap();
+    for (command, file) in [
+        ("simulate", "carousel-step-report.html"),
+        ("design", "carousel-step-design-report.html"),
+    ] {
+        let args = [
+            "ampwright",
+            command,
+            demo.to_str().unwrap(),
+            "--out",
+            out,
+            "--report",
+            "--quiet",
+        ];
+        let args: Vec<&str> = args
+            .into_iter()
+            .filter(|a| command == "simulate" || *a != "--quiet")
+            .collect();
+        assert_eq!(
+            host_sim::cli::main(args.into_iter().map(Into::into)),
+            0,
+            "{command}"
+        );
+        let html = std::fs::read_to_string(dir.join(file)).unwrap();
+        assert!(html.starts_with("<!DOCTYPE html>") && html.trim_end().ends_with("</html>"));
+        let pictures = html.matches("<svg").count();
+        assert!(
+            pictures >= if command == "design" { 2 } else { 1 },
+            "{command}: {pictures}"
+        );
+        for outside in ["<script", "<link", "<img", "url(", "@import", "src="] {
+            assert!(!html.contains(outside), "{command}: {outside}");
+        }
+    }
+}

@@ -5,6 +5,7 @@ use std::path::PathBuf;
 
 use crate::plot::{frequency_response_svg, root_locus_svg};
 use crate::prepare::{self, Overrides};
+use crate::results::html::{Section, page};
 use crate::scenario::Params;
 use crate::tuning::DesignReport;
 
@@ -52,6 +53,10 @@ pub struct DesignArgs {
     /// Overlay every other stable method's frequency response on the chosen one's.
     #[arg(long)]
     pub overlay_methods: bool,
+    /// Also write one self-contained HTML page (tables and pictures inline)
+    /// for a review.
+    #[arg(long)]
+    pub report: bool,
 }
 
 impl DesignArgs {
@@ -118,25 +123,31 @@ fn write_files(args: &DesignArgs, report: &DesignReport) -> Result<Vec<String>, 
         put(format!("{stem}-gains.rs"), snippet)?;
     }
     put(format!("{stem}-design.json"), report.json() + "\n")?;
+    let mut sections = report.sections();
     if let Some(p) = report.survey.pictures(args.overlay_methods) {
-        put(
-            format!("{stem}-root-locus.svg"),
-            root_locus_svg(
-                &format!("{}: root locus in z ({})", report.name, p.method),
-                &p.locus,
-                Some(p.desired),
-            ),
-        )?;
+        let locus = root_locus_svg(
+            &format!("{}: root locus in z ({})", report.name, p.method),
+            &p.locus,
+            Some(p.desired),
+        );
+        put(format!("{stem}-root-locus.svg"), locus.clone())?;
+        sections.push(Section::Heading("Pictures".into()));
+        sections.push(Section::Picture("root locus".into(), locus));
         let others: Vec<(&str, &[crate::tuning::locus::BodePoint])> =
             p.others.iter().map(|(n, v)| (*n, v.as_slice())).collect();
+        let bode = frequency_response_svg(
+            &format!("{}: open-loop frequency response ({})", report.name, p.method),
+            (p.method, &p.bode),
+            &p.margins,
+            &others,
+        );
+        put(format!("{stem}-frequency-response.svg"), bode.clone())?;
+        sections.push(Section::Picture("open-loop frequency response".into(), bode));
+    }
+    if args.report {
         put(
-            format!("{stem}-frequency-response.svg"),
-            frequency_response_svg(
-                &format!("{}: open-loop frequency response ({})", report.name, p.method),
-                (p.method, &p.bode),
-                &p.margins,
-                &others,
-            ),
+            format!("{stem}-design-report.html"),
+            page(&format!("{}: PI design", report.name), &sections),
         )?;
     }
     Ok(written)

@@ -7,6 +7,7 @@ use std::path::PathBuf;
 use crate::cli::progress::Progress;
 use crate::plot::{StepPlot, long_run_svg, step_response_svg};
 use crate::prepare;
+use crate::results::html::{Section, page};
 use crate::results::plan::Plan;
 use crate::sim::trace::CsvRows;
 
@@ -35,6 +36,10 @@ pub struct SimulateArgs {
     /// No progress bar.
     #[arg(long)]
     pub quiet: bool,
+    /// Also write one self-contained HTML page (tables and pictures inline)
+    /// for a review.
+    #[arg(long)]
+    pub report: bool,
 }
 
 /// Runs the command; returns the exit code: 0 done (and the spec met), 1 a
@@ -207,6 +212,22 @@ fn write_files(
             rep.first_fault.as_ref().map(|(w, t)| (w.as_str(), *t)),
         );
         super::write_with(&path, |f| f.write_all(doc.as_bytes()))?;
+        written.push(path.display().to_string());
+    }
+    if args.report {
+        let mut sections = rep.sections();
+        sections.push(Section::Heading("Pictures".into()));
+        sections.push(Section::Picture("step response".into(), doc.clone()));
+        for extra in &written {
+            if extra.ends_with("-thermal.svg")
+                && let Ok(svg) = std::fs::read_to_string(extra)
+            {
+                sections.push(Section::Picture("winding temperature and I^2t".into(), svg));
+            }
+        }
+        let path = dir.join(format!("{stem}-report.html"));
+        let html = page(&format!("{}: simulation", rep.name), &sections);
+        super::write_with(&path, |f| f.write_all(html.as_bytes()))?;
         written.push(path.display().to_string());
     }
     if args.edges {

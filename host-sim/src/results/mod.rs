@@ -5,6 +5,7 @@
 //! JSON.
 
 pub mod expect;
+pub mod html;
 pub mod metrics;
 pub mod plan;
 pub mod report;

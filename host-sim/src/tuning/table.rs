@@ -181,6 +181,72 @@ impl DesignReport {
         ))
     }
 
+    /// The report as sections of an HTML page (the pictures are the caller's).
+    pub fn sections(&self) -> Vec<crate::results::html::Section> {
+        use crate::results::html::Section;
+        let b = &self.survey.basis;
+        let mut out = vec![Section::Text(format!(
+            "Winding R = {} ohm, L = {} H; control period {} us; sample-to-update delay {:.2} periods; spec: settling {} ms, overshoot {} %{}.",
+            b.resistance_ohm,
+            b.inductance_h,
+            b.period_s * 1e6,
+            b.delay_periods,
+            b.settling_time_s * 1e3,
+            b.overshoot * 100.0,
+            b.rise_time_s
+                .map_or(String::new(), |r| format!(", rise {} ms", r * 1e3))
+        ))];
+        out.push(Section::Heading("Methods".into()));
+        out.push(Section::Table(
+            [
+                "method",
+                "Kp (V/A)",
+                "Ti (ms)",
+                "b",
+                "overshoot (%)",
+                "settling (ms)",
+                "rise (ms)",
+                "phase margin (deg)",
+                "gain margin (dB)",
+                "modulus margin",
+                "verdict",
+            ]
+            .map(String::from)
+            .to_vec(),
+            self.survey
+                .methods
+                .iter()
+                .map(|m| {
+                    let p = m.predicted;
+                    vec![
+                        m.method.to_string(),
+                        opt(m.kp_v_per_a, 1.0, 3),
+                        opt(m.ti_s, 1e3, 4),
+                        m.setpoint_weight.to_string(),
+                        opt(p.map(|p| p.overshoot_pct), 1.0, 2),
+                        opt(p.and_then(|p| p.settling_time_s), 1e3, 3),
+                        opt(p.and_then(|p| p.rise_time_s), 1e3, 3),
+                        opt(m.phase_margin_deg, 1.0, 1),
+                        opt(m.gain_margin_db, 1.0, 1),
+                        opt(m.modulus_margin, 1.0, 2),
+                        match (&m.refused, m.meets_spec) {
+                            (Some(why), _) => format!("refused: {why}"),
+                            (None, true) => "meets".into(),
+                            (None, false) => format!("misses {}", m.misses.join(", ")),
+                        },
+                    ]
+                })
+                .collect(),
+        ));
+        out.push(Section::Text(match self.chosen() {
+            Some(m) => format!("Chosen: {} ({}).", m.method, self.survey.choice_rule),
+            None => self.infeasible(),
+        }));
+        out.push(Section::Heading("The command's report".into()));
+        out.push(Section::Pre(self.table()));
+        out
+    }
+
     /// The report as JSON.
     pub fn json(&self) -> String {
         serde_json::to_string_pretty(self).unwrap_or_else(|e| format!("{{\"error\": \"{e}\"}}"))
