@@ -8,5 +8,7 @@ pub mod expect;
 pub mod html;
 pub mod metrics;
 pub mod plan;
+pub mod protections;
 pub mod report;
+mod report_page;
 pub mod summary;

@@ -3,12 +3,13 @@
 
 use std::fmt::Write;
 
-use pi_core::{FaultSet, LoopConfig, Protection};
+use pi_core::FaultSet;
 use serde::Serialize;
 
 use crate::plant::bridge::Modulation;
 use crate::results::expect::{self, ExpectCheck};
 use crate::results::metrics::{self, Check, StepMetrics};
+pub use crate::results::protections::{ProtectionLine, protections};
 use crate::results::summary::Summary;
 use crate::scenario::{Scenario, ScenarioError};
 use crate::sim::trace::Trace;
@@ -78,93 +79,6 @@ pub struct Report {
     /// How the gains were designed, when the scenario left them out, with the
     /// step the design predicts (to set beside the measured ones).
     pub designed: Option<Designed>,
-}
-
-/// One protection of the loop as configured by the scenario.
-#[derive(Clone, Debug, Serialize)]
-pub struct ProtectionLine {
-    /// What it guards against.
-    pub name: &'static str,
-    /// Whether it is on.
-    pub on: bool,
-    /// Its setting when on, or why its being off does not matter.
-    pub setting: String,
-    /// When off and it matters: what goes unnoticed, and the fields that turn it on.
-    pub warning: Option<String>,
-}
-
-/// The protections of a loop configuration, in the scenario's terms.
-/// `speed_feedback` says whether the firmware gets a speed reading at all.
-pub fn protections(config: &LoopConfig, speed_feedback: bool) -> Vec<ProtectionLine> {
-    let on = config.protections();
-    let sup = config.supervisor();
-    Protection::ALL
-        .into_iter()
-        .map(|p| {
-            let setting = match p {
-                Protection::Overcurrent => Some(format!(
-                    "above {} A for {} samples",
-                    sup.overcurrent().threshold_a(),
-                    sup.overcurrent().samples()
-                )),
-                Protection::BusWindow => Some(format!("{} V to {} V", sup.bus().min_v(), sup.bus().max_v())),
-                Protection::SensorReadings => Some("NaN, infinite or at an ADC rail".to_string()),
-                Protection::Overload => sup.thermal().map(|t| {
-                    format!(
-                        "{} A rated, time constant {:.1} s, trips above {} x rated",
-                        t.rated_a(),
-                        t.tau_s(),
-                        t.trip_multiple()
-                    )
-                }),
-                Protection::SensorStuck => sup.stuck_detection().map(|d| {
-                    format!(
-                        "within {} counts for {} ticks at duty {} or more",
-                        d.band_counts(),
-                        d.ticks(),
-                        d.min_drive()
-                    )
-                }),
-                Protection::SpeedLimit => sup
-                    .speed_limit()
-                    .map(|w| format!("above {} rad/s", w.max_speed_rad_s())),
-            };
-            let fields = match p {
-                Protection::Overload => {
-                    "set controller.protection.rated_a with trip_class or thermal_time_constant_s"
-                }
-                Protection::SensorStuck => {
-                    "set controller.protection.stuck_band_counts, stuck_ticks and stuck_min_duty"
-                }
-                _ => "set controller.protection.max_speed_rad_s",
-            };
-            let matters = p != Protection::SpeedLimit || speed_feedback;
-            match setting {
-                Some(setting) if on.is_on(p) => ProtectionLine {
-                    name: p.describe(),
-                    on: true,
-                    setting,
-                    warning: None,
-                },
-                _ if !matters => ProtectionLine {
-                    name: p.describe(),
-                    on: false,
-                    setting: "no speed reading in this scenario".to_string(),
-                    warning: None,
-                },
-                _ => ProtectionLine {
-                    name: p.describe(),
-                    on: false,
-                    setting: String::new(),
-                    warning: Some(format!(
-                        "{} is off: {}; {fields}",
-                        p.describe(),
-                        p.risk_when_off()
-                    )),
-                },
-            }
-        })
-        .collect()
 }
 
 /// Runs a scenario with the real `pi-core` loop; `progress` gets the fraction
@@ -467,123 +381,6 @@ impl Report {
             }
         );
         s
-    }
-
-    /// The report as sections of an HTML page (the pictures are the caller's).
-    pub fn sections(&self) -> Vec<crate::results::html::Section> {
-        use crate::results::html::Section;
-        let mut out = Vec::new();
-        if !self.description.is_empty() {
-            out.push(Section::Text(self.description.clone()));
-        }
-        out.push(Section::Text(format!(
-            "{} bridge at {:.0} Hz PWM, control at {:.0} Hz, {} ticks over {:.3} s. Verdict: {}.",
-            self.bridge_mode,
-            self.pwm_frequency_hz,
-            self.control_rate_hz,
-            self.ticks,
-            self.duration_s,
-            match self.pass {
-                None => "nothing to check",
-                Some(true) => "PASS",
-                Some(false) => "FAIL",
-            }
-        )));
-        out.push(Section::Heading("Steps".into()));
-        let ms = |v: Option<f64>| v.map_or("-".to_string(), |t| format!("{:.3}", t * 1e3));
-        out.push(Section::Table(
-            [
-                "step",
-                "at (ms)",
-                "from (A)",
-                "to (A)",
-                "rise (ms)",
-                "overshoot (%)",
-                "settling (ms)",
-                "peak (A)",
-                "steady-state error (A)",
-                "note",
-            ]
-            .map(String::from)
-            .to_vec(),
-            self.steps
-                .iter()
-                .enumerate()
-                .map(|(k, m)| {
-                    vec![
-                        k.to_string(),
-                        format!("{:.3}", m.at_s * 1e3),
-                        format!("{:.3}", m.from_a),
-                        format!("{:.3}", m.to_a),
-                        ms(m.rise_time_s),
-                        format!("{:.2}", m.overshoot_pct),
-                        ms(m.settling_time_s),
-                        format!("{:.3}", m.peak_a),
-                        format!("{:.4}", m.steady_state_error_a),
-                        match (m.interrupted, m.clamped) {
-                            (Some(i), _) => format!("not scored: {}", i.describe()),
-                            (None, true) => "clamped to the setpoint limit".into(),
-                            _ => String::new(),
-                        },
-                    ]
-                })
-                .collect(),
-        ));
-        if !self.checks.is_empty() {
-            out.push(Section::Heading("Spec".into()));
-            out.push(Section::Table(
-                ["step", "criterion", "measured", "limit", "margin", "verdict"]
-                    .map(String::from)
-                    .to_vec(),
-                self.checks
-                    .iter()
-                    .map(|c| {
-                        let v = |x: Option<f64>| x.map_or("-".to_string(), |x| format!("{x:.6}"));
-                        vec![
-                            c.step.to_string(),
-                            c.criterion.to_string(),
-                            v(c.measured),
-                            format!("{:.6}", c.limit),
-                            v(c.margin),
-                            if c.pass { "pass" } else { "FAIL" }.to_string(),
-                        ]
-                    })
-                    .collect(),
-            ));
-        }
-        if !self.expectations.is_empty() {
-            out.push(Section::Heading("Expectations".into()));
-            out.push(Section::Table(
-                ["expected", "happened", "verdict"].map(String::from).to_vec(),
-                self.expectations
-                    .iter()
-                    .map(|c| {
-                        vec![
-                            c.expected.clone(),
-                            c.happened.clone(),
-                            if c.pass { "pass" } else { "FAIL" }.into(),
-                        ]
-                    })
-                    .collect(),
-            ));
-        }
-        out.push(Section::Heading("Protections".into()));
-        out.push(Section::Table(
-            ["protection", "on", "setting"].map(String::from).to_vec(),
-            self.protections
-                .iter()
-                .map(|p| {
-                    vec![
-                        p.name.to_string(),
-                        if p.on { "on" } else { "OFF" }.into(),
-                        p.setting.clone(),
-                    ]
-                })
-                .collect(),
-        ));
-        out.push(Section::Heading("The command's report".into()));
-        out.push(Section::Pre(self.table()));
-        out
     }
 
     /// The report as JSON.
