@@ -21,15 +21,7 @@ const TEMPLATE: &str = include_str!("../host-sim/scenarios/carousel_step.toml");
 /// The template with the lines starting with `key` replaced (or dropped when
 /// `with` is empty).
 fn edited(edits: &[(&str, &str)]) -> String {
-    TEMPLATE
-        .lines()
-        .filter_map(|l| match edits.iter().find(|(k, _)| l.starts_with(k)) {
-            Some((_, "")) => None,
-            Some((_, w)) => Some(w.to_string()),
-            None => Some(l.to_string()),
-        })
-        .collect::<Vec<_>>()
-        .join("\n")
+    ampwright_tests::edited(TEMPLATE, edits)
 }
 
 fn no_gains(extra: &[(&str, &str)]) -> Params {

@@ -3,22 +3,12 @@
 //! saturation), each failing the verdict and the exit code when it does not
 //! hold; and the safety notes every run makes.
 
+use ampwright_tests::edited;
 use host_sim::results::report;
 use host_sim::scenario::Params;
 
 const JAM: &str = include_str!("../host-sim/scenarios/carousel_jam.toml");
 const DEMO: &str = include_str!("../host-sim/scenarios/carousel_step.toml");
-
-fn edited(text: &str, edits: &[(&str, &str)]) -> String {
-    text.lines()
-        .filter_map(|l| match edits.iter().find(|(k, _)| l.starts_with(k)) {
-            Some((_, "")) => None,
-            Some((_, w)) => Some(w.to_string()),
-            None => Some(l.to_string()),
-        })
-        .collect::<Vec<_>>()
-        .join("\n")
-}
 
 fn run(text: &str) -> report::Report {
     let s = Params::from_toml(text, "t").unwrap().build().unwrap();

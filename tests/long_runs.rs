@@ -3,23 +3,13 @@
 //! interrupted are reported as such instead of scored. One test per process
 //! matters for the memory check, so this suite is its own binary.
 
+use ampwright_tests::edited;
 use host_sim::results::metrics::Interruption;
 use host_sim::results::report;
 use host_sim::scenario::Params;
 
 const JAM: &str = include_str!("../host-sim/scenarios/carousel_jam.toml");
 const DEMO: &str = include_str!("../host-sim/scenarios/carousel_step.toml");
-
-fn edited(text: &str, edits: &[(&str, &str)]) -> String {
-    text.lines()
-        .filter_map(|l| match edits.iter().find(|(k, _)| l.starts_with(k)) {
-            Some((_, "")) => None,
-            Some((_, w)) => Some(w.to_string()),
-            None => Some(l.to_string()),
-        })
-        .collect::<Vec<_>>()
-        .join("\n")
-}
 
 fn run(text: &str) -> (host_sim::Trace, report::Report) {
     let p = Params::from_toml(text, "t").unwrap();

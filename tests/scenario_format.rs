@@ -136,14 +136,7 @@ fn parser_messages_have_no_rust_in_them() {
 }
 
 fn error_of(extra: &str, edits: &[(&str, &str)]) -> String {
-    let mut text: String = TEMPLATE
-        .lines()
-        .map(|l| match edits.iter().find(|(k, _)| l.starts_with(k)) {
-            Some((_, w)) => w.to_string(),
-            None => l.to_string(),
-        })
-        .collect::<Vec<_>>()
-        .join("\n");
+    let mut text = ampwright_tests::edited(TEMPLATE, edits);
     text.push_str(extra);
     Params::from_toml(&text, "t").unwrap_err().to_string()
 }

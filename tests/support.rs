@@ -17,3 +17,16 @@ pub fn temp_dir(name: &str) -> std::path::PathBuf {
     std::fs::create_dir_all(&d).unwrap_or_else(|e| panic!("cannot create {}: {e}", d.display()));
     d
 }
+
+/// Scenario text with the lines that start with each key replaced by its
+/// text, or dropped when the text is empty.
+pub fn edited(text: &str, edits: &[(&str, &str)]) -> String {
+    text.lines()
+        .filter_map(|l| match edits.iter().find(|(k, _)| l.starts_with(k)) {
+            Some((_, "")) => None,
+            Some((_, w)) => Some(w.to_string()),
+            None => Some(l.to_string()),
+        })
+        .collect::<Vec<_>>()
+        .join("\n")
+}

@@ -44,13 +44,8 @@ pub fn long_run_svg(title: &str, trace: &Trace, first_fault: Option<(&str, f64)>
     c.frame(&x, &yt, "", "winding (C)", &fmt);
     c.frame(&x, &yl, "time (s)", "I^2t heat / trip level", &fmt);
     c.text(left, 26.0, title, 15.0, "start", "#111");
-    let stride = (pts.len() / ((right - left) as usize * 2)).max(1);
-    let series = |f: &dyn Fn(&crate::sim::trace::TracePoint) -> f64, axis: &Axis| -> Vec<(f64, f64)> {
-        pts.iter()
-            .step_by(stride)
-            .filter(|p| f(p).is_finite())
-            .map(|p| (x.px(p.t_s), axis.px(f(p))))
-            .collect()
+    let series = |f: &dyn Fn(&crate::sim::trace::TracePoint) -> f64, axis: &Axis| {
+        crate::plot::svg::trace_series(pts, &x, axis, right - left, f)
     };
     c.series(
         "winding temperature",

@@ -298,13 +298,8 @@ pub fn step_response_svg(trace: &Trace, plot: &StepPlot) -> String {
     }
 
     // Data, thinned to at most about two points per pixel column.
-    let stride = (pts.len() / ((right - left) as usize * 2)).max(1);
-    let series = |f: &dyn Fn(&crate::sim::trace::TracePoint) -> f64, axis: &Axis| -> Vec<(f64, f64)> {
-        pts.iter()
-            .step_by(stride)
-            .filter(|p| f(p).is_finite())
-            .map(|p| (x.px(p.t_s), axis.px(f(p))))
-            .collect()
+    let series = |f: &dyn Fn(&crate::sim::trace::TracePoint) -> f64, axis: &Axis| {
+        crate::plot::svg::trace_series(pts, &x, axis, right - left, f)
     };
     c.series("duty", &series(&|p| p.duty, &duty), DUTY, 1.0, None);
     if pts.iter().any(|p| p.request_a != p.setpoint_a) {

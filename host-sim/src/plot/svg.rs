@@ -426,6 +426,23 @@ impl Canvas {
     }
 }
 
+/// Pixel points of one column of a trace, thinned to about two points per
+/// pixel column of the plot `width` wide, skipping values that are not finite.
+pub fn trace_series(
+    pts: &[crate::sim::trace::TracePoint],
+    x: &Axis,
+    y: &Axis,
+    width: f64,
+    f: &dyn Fn(&crate::sim::trace::TracePoint) -> f64,
+) -> Vec<(f64, f64)> {
+    let stride = (pts.len() / (width.max(1.0) as usize * 2)).max(1);
+    pts.iter()
+        .step_by(stride)
+        .filter(|p| f(p).is_finite())
+        .map(|p| (x.px(p.t_s), y.px(f(p))))
+        .collect()
+}
+
 /// Whether two boxes `(x0, y0, x1, y1)` overlap.
 pub fn overlaps(a: (f64, f64, f64, f64), b: (f64, f64, f64, f64)) -> bool {
     a.0 < b.2 && b.0 < a.2 && a.1 < b.3 && b.1 < a.3
