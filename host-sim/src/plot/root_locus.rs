@@ -99,24 +99,13 @@ fn panel(c: &mut Canvas, x: &Axis, y: &Axis, locus: &Locus, desired: Option<(f64
         "Im z",
         &fmt,
     );
-    // Grid.
+    // Grid: constant damping solid, constant natural frequency dashed.
     for zeta in [0.2, 0.4, 0.6, 0.8] {
-        let upper = constant_damping(zeta);
-        for sign in [1.0, -1.0] {
-            let curve: Vec<Complex<f64>> = upper.iter().map(|z| Complex::new(z.re, sign * z.im)).collect();
-            for piece in clipped(x, y, &curve) {
-                c.polyline(&piece, GRID, 0.8, None);
-            }
-        }
+        grid_curve(c, x, y, &constant_damping(zeta), None);
     }
     for k in 1..=10 {
-        let upper = constant_natural_frequency(std::f64::consts::PI * k as f64 / 10.0);
-        for sign in [1.0, -1.0] {
-            let curve: Vec<Complex<f64>> = upper.iter().map(|z| Complex::new(z.re, sign * z.im)).collect();
-            for piece in clipped(x, y, &curve) {
-                c.polyline(&piece, GRID, 0.8, Some("2 2"));
-            }
-        }
+        let wn_t = std::f64::consts::PI * k as f64 / 10.0;
+        grid_curve(c, x, y, &constant_natural_frequency(wn_t), Some("2 2"));
     }
     let circle: Vec<Complex<f64>> = (0..=720)
         .map(|k| Complex::unit(2.0 * std::f64::consts::PI * k as f64 / 720.0))
@@ -186,6 +175,16 @@ fn panel(c: &mut Canvas, x: &Axis, y: &Axis, locus: &Locus, desired: Option<(f64
                 );
                 labelled = true;
             }
+        }
+    }
+}
+
+/// A grid curve given in the upper half plane, drawn with its mirror image.
+fn grid_curve(c: &mut Canvas, x: &Axis, y: &Axis, upper: &[Complex<f64>], dash: Option<&str>) {
+    for sign in [1.0, -1.0] {
+        let curve: Vec<Complex<f64>> = upper.iter().map(|z| Complex::new(z.re, sign * z.im)).collect();
+        for piece in clipped(x, y, &curve) {
+            c.polyline(&piece, GRID, 0.8, dash);
         }
     }
 }
