@@ -48,6 +48,9 @@
 //! discrete placement) and analyses any gains on the sampled loop; it is generic
 //! over `f32` (on the device, for a retune from a bench command) and `f64` (the
 //! host's `ampwright design`), and never runs inside the control interrupt.
+//! [`identify`] fits an R-L load's resistance and inductance to samples of
+//! voltage and current by recursive least squares with a fixed-size state, so
+//! a board can measure its own winding during an excitation.
 //!
 //! ## Conventions
 //!
@@ -77,6 +80,7 @@ pub mod error;
 pub mod fault;
 pub mod hal;
 pub mod handoff;
+pub mod identify;
 pub mod num;
 pub mod output;
 pub mod pi;

@@ -170,6 +170,19 @@ fn design_gains() -> Option<PiGains> {
     g.to_pi_gains().ok()
 }
 
+/// The board identifying its own winding during an excitation.
+fn identify_winding() {
+    let mut id = pi_core::identify::RlIdentifier::new(black_box(50e-6f32));
+    for k in 0..black_box(64u32) {
+        let v = if k < 32 { 2.0 } else { 6.0 };
+        id.sample(black_box(v), black_box(0.01 * k as f32));
+    }
+    if let Ok(e) = id.estimate() {
+        black_box(e.resistance_ohm);
+        black_box(e.inductance_sd_h);
+    }
+}
+
 /// The bare PI on its own, as a firmware with its own supervision would use it.
 fn bare_pi() {
     let Ok(gains) = PiGains::from_kp_ti(black_box(3.0), black_box(1.26e-3)) else {
@@ -233,6 +246,7 @@ pub extern "C" fn _start() -> ! {
         }
     };
     bare_pi();
+    identify_winding();
     parts_alone();
     let mut queue: Queue<Command, 8> = Queue::new();
     let (mut to_isr, mut from_main) = queue.split();
