@@ -75,17 +75,15 @@ impl<T: Real> Rls3<T> {
             *t = *t + g * err;
         }
         // P <- P - g (P phi)', kept symmetric by averaging.
-        for i in 0..3 {
-            for j in 0..3 {
-                self.p[i][j] = self.p[i][j] - gain[i] * pphi[j];
+        for (row, &g) in self.p.iter_mut().zip(gain.iter()) {
+            for (v, &pp) in row.iter_mut().zip(pphi.iter()) {
+                *v = *v - g * pp;
             }
         }
-        for i in 0..3 {
-            for j in (i + 1)..3 {
-                let m = (self.p[i][j] + self.p[j][i]) * T::of(0.5);
-                self.p[i][j] = m;
-                self.p[j][i] = m;
-            }
+        for (i, j) in [(0, 1), (0, 2), (1, 2)] {
+            let m = (self.p[i][j] + self.p[j][i]) * T::of(0.5);
+            self.p[i][j] = m;
+            self.p[j][i] = m;
         }
         // The a-posteriori residual adds to the sum of squares.
         let post = y - (phi[0] * self.theta[0] + phi[1] * self.theta[1] + phi[2] * self.theta[2]);
