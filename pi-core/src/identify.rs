@@ -80,11 +80,17 @@ impl<T: Real> Rls3<T> {
                 *v = *v - g * pp;
             }
         }
-        for (i, j) in [(0, 1), (0, 2), (1, 2)] {
-            let m = (self.p[i][j] + self.p[j][i]) * T::of(0.5);
-            self.p[i][j] = m;
-            self.p[j][i] = m;
-        }
+        // Literal indices: no bounds check, no panic path on the device.
+        let half = T::of(0.5);
+        let m01 = (self.p[0][1] + self.p[1][0]) * half;
+        let m02 = (self.p[0][2] + self.p[2][0]) * half;
+        let m12 = (self.p[1][2] + self.p[2][1]) * half;
+        self.p[0][1] = m01;
+        self.p[1][0] = m01;
+        self.p[0][2] = m02;
+        self.p[2][0] = m02;
+        self.p[1][2] = m12;
+        self.p[2][1] = m12;
         // The a-posteriori residual adds to the sum of squares.
         let post = y - (phi[0] * self.theta[0] + phi[1] * self.theta[1] + phi[2] * self.theta[2]);
         self.sse = self.sse + err * post;
