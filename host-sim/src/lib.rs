@@ -35,11 +35,14 @@
 //! * [`plot`]: SVG (step response, root locus, frequency response).
 //! * [`cli`]: the `ampwright` command, one file per command, each owning its
 //!   arguments: parse, call, print.
+//! * [`bench`](mod@bench): captures from the bench read from CSV, and the load
+//!   identified from them.
 //! * [`demo`]: the built-in invented machine and board.
 //!
 //! Model parameters that are out of range are refused with a [`ModelError`]
 //! naming the field (or the command-line option that set it).
 
+pub mod bench;
 pub mod cli;
 pub mod demo;
 pub mod model_error;

@@ -7,12 +7,14 @@
 //! spec no design meets) or an output that could not be written.
 
 pub mod design;
+pub mod identify;
 pub mod progress;
 pub mod simulate;
 
 use std::ffi::OsString;
 
 pub use design::DesignArgs;
+pub use identify::IdentifyArgs;
 pub use simulate::SimulateArgs;
 
 use clap::{Parser, Subcommand};
@@ -37,6 +39,10 @@ pub enum CommandArgs {
     /// every method, analyse each on the sampled loop, and write the chosen
     /// gains as Rust constants and JSON, a root locus and a frequency response.
     Design(DesignArgs),
+    /// Identify a winding's R and L from a bench capture (CSV): estimates with
+    /// 95 % intervals, a `[motor]` section to paste into a scenario, and a
+    /// picture of the capture against the fitted model.
+    Identify(IdentifyArgs),
 }
 
 /// A file name from a scenario name: letters, digits, `-` and `_` kept.
@@ -95,5 +101,6 @@ pub fn main(args: impl IntoIterator<Item = OsString>) -> i32 {
     match args.command {
         CommandArgs::Simulate(a) => simulate::run(&a),
         CommandArgs::Design(a) => design::run(&a),
+        CommandArgs::Identify(a) => identify::run(&a),
     }
 }

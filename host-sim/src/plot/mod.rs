@@ -1,11 +1,13 @@
 //! Pictures of a run, as SVG: one file per picture.
 
+pub mod fit;
 pub mod frequency_response;
 pub mod long_run;
 pub mod root_locus;
 pub mod step_response;
 pub mod svg;
 
+pub use fit::fit_svg;
 pub use frequency_response::frequency_response_svg;
 pub use long_run::long_run_svg;
 pub use root_locus::root_locus_svg;

@@ -1,0 +1,244 @@
+//! R and L of a held rotor (or any R-L load) from a capture: pi-core's
+//! recursive least squares ([`pi_core::identify`]) on the exact zero-order-hold
+//! model, with the voltage's delay behind the samples found from the data
+//! (the whole number of samples, 0 to [`MAX_DELAY_SAMPLES`], whose fit leaves
+//! the least residual), 95 % intervals from the fit's covariance, and the
+//! fit's quality: the normalised RMS error of the model run on its own from
+//! the first sample, and the residual's autocorrelation at one sample.
+
+use pi_core::identify::RlIdentifier;
+use serde::Serialize;
+
+use super::capture::{Capture, CaptureError};
+
+/// The longest voltage delay tried, samples.
+pub const MAX_DELAY_SAMPLES: usize = 4;
+/// Two-sided 95 % point of the normal distribution.
+pub const Z95: f64 = 1.959_963_984_540_054;
+/// A residual autocorrelation above this says the model misses something
+/// (common practice: a white residual stays near 0).
+pub const RESIDUAL_CORRELATION_WARN: f64 = 0.5;
+
+/// A value with its 95 % interval.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+pub struct Estimate {
+    /// The value.
+    pub value: f64,
+    /// Lower end of the 95 % interval.
+    pub low: f64,
+    /// Upper end.
+    pub high: f64,
+}
+
+impl Estimate {
+    fn of(value: f64, sd: f64) -> Self {
+        Self {
+            value,
+            low: value - Z95 * sd,
+            high: value + Z95 * sd,
+        }
+    }
+}
+
+/// An identified R-L load.
+#[derive(Clone, Debug, Serialize)]
+pub struct RlFit {
+    /// Resistance, ohm.
+    pub resistance_ohm: Estimate,
+    /// Inductance, H.
+    pub inductance_h: Estimate,
+    /// The nuisance constant per sample, A (a sensor offset and a voltage
+    /// lost in the bridge, together).
+    pub constant_a: f64,
+    /// The voltage's delay behind the samples, whole samples.
+    pub delay_samples: usize,
+    /// The sample period, s.
+    pub period_s: f64,
+    /// Samples used.
+    pub samples: usize,
+    /// RMS error of the model run on its own, over the RMS of the current's
+    /// variation (0 is a perfect fit).
+    pub nrmse: f64,
+    /// The one-step residual's autocorrelation at one sample.
+    pub residual_autocorrelation: f64,
+    /// The model run on its own from the first sample, A (for the picture).
+    #[serde(skip)]
+    pub model_a: Vec<f64>,
+    /// Warnings, one sentence each.
+    pub warnings: Vec<String>,
+}
+
+fn fit(c: &Capture, delay: usize) -> Option<(RlIdentifier<f64>, f64)> {
+    let mut id = RlIdentifier::new(c.period_s);
+    for k in delay..c.current_a.len() {
+        id.sample(c.voltage_v[k - delay], c.current_a[k]);
+    }
+    let s2 = id.rls().residual_variance()?;
+    id.estimate().ok().map(|_| (id, s2))
+}
+
+/// Identifies R and L; `delay` fixes the voltage's delay in samples instead of
+/// finding it.
+pub fn identify_rl(c: &Capture, name: &str, delay: Option<usize>) -> Result<RlFit, CaptureError> {
+    let candidates: Vec<usize> = match delay {
+        Some(d) => vec![d],
+        None => (0..=MAX_DELAY_SAMPLES).collect(),
+    };
+    let (d, id) = candidates
+        .into_iter()
+        .filter_map(|d| fit(c, d).map(|(id, s2)| (d, id, s2)))
+        .min_by(|a, b| a.2.total_cmp(&b.2))
+        .map(|(d, id, _)| (d, id))
+        .ok_or_else(|| {
+            CaptureError(format!(
+                "{name}: the samples do not fit an R-L load at this sample period ({:e} s) with any voltage delay up to {MAX_DELAY_SAMPLES} samples; check the columns, their scales and where the voltage comes from ({})",
+                c.period_s, c.voltage_from
+            ))
+        })?;
+    let e = id
+        .estimate()
+        .map_err(|why| CaptureError(format!("{name}: {why}")))?;
+    let [a_minus_1, b, k0] = id.rls().theta();
+    let a = 1.0 + a_minus_1;
+    // The model on its own from the first sample.
+    let n = c.current_a.len();
+    let mut model = vec![c.current_a[0]; n];
+    for k in 1..n {
+        let v = if k > d {
+            c.voltage_v[k - 1 - d]
+        } else {
+            c.voltage_v[0]
+        };
+        model[k] = a * model[k - 1] + b * v + k0;
+    }
+    let mean = c.current_a.iter().sum::<f64>() / n as f64;
+    let spread = (c.current_a.iter().map(|i| (i - mean).powi(2)).sum::<f64>() / n as f64).sqrt();
+    let err = (c
+        .current_a
+        .iter()
+        .zip(&model)
+        .map(|(i, m)| (i - m).powi(2))
+        .sum::<f64>()
+        / n as f64)
+        .sqrt();
+    let nrmse = if spread > 0.0 { err / spread } else { f64::INFINITY };
+    // One-step residuals and their lag-1 autocorrelation.
+    let resid: Vec<f64> = (1 + d..n)
+        .map(|k| c.current_a[k] - (a * c.current_a[k - 1] + b * c.voltage_v[k - 1 - d] + k0))
+        .collect();
+    let rm = resid.iter().sum::<f64>() / resid.len().max(1) as f64;
+    let var = resid.iter().map(|r| (r - rm).powi(2)).sum::<f64>();
+    let cov = resid.windows(2).map(|w| (w[0] - rm) * (w[1] - rm)).sum::<f64>();
+    let rho = if var > 0.0 { cov / var } else { 0.0 };
+    let mut warnings = Vec::new();
+    let tau = e.inductance_h / e.resistance_ohm;
+    let span_s = c.period_s * n as f64;
+    if span_s < 3.0 * tau {
+        warnings.push(format!(
+            "the capture spans {:.3} ms, under three time constants L/R ({:.3} ms): the steady state is barely seen and R is uncertain; capture longer",
+            span_s * 1e3,
+            3.0 * tau * 1e3
+        ));
+    }
+    if tau < 3.0 * c.period_s {
+        warnings.push(format!(
+            "the time constant L/R ({:.3} us) spans under three samples: L is uncertain; sample faster",
+            tau * 1e6
+        ));
+    }
+    if rho.abs() > RESIDUAL_CORRELATION_WARN {
+        warnings.push(format!(
+            "the residual is correlated from sample to sample ({rho:.2}): the R-L model misses something (a turning rotor's back-EMF, a delay that is not whole samples, a filter); the intervals are too narrow"
+        ));
+    }
+    Ok(RlFit {
+        resistance_ohm: Estimate::of(e.resistance_ohm, e.resistance_sd_ohm),
+        inductance_h: Estimate::of(e.inductance_h, e.inductance_sd_h),
+        constant_a: e.constant_a,
+        delay_samples: d,
+        period_s: c.period_s,
+        samples: n,
+        nrmse,
+        residual_autocorrelation: rho,
+        model_a: model,
+        warnings,
+    })
+}
+
+impl RlFit {
+    /// The table, for people.
+    pub fn table(&self, name: &str) -> String {
+        use std::fmt::Write;
+        let mut s = String::new();
+        let _ = writeln!(
+            s,
+            "{name}: R-L identification ({} samples, {:.4} us apart)\n",
+            self.samples,
+            self.period_s * 1e6
+        );
+        let _ = writeln!(
+            s,
+            "{:<16} {:>14} {:>14} {:>14}",
+            "parameter", "value", "95 % low", "95 % high"
+        );
+        for (p, e, scale, unit) in [
+            ("resistance", &self.resistance_ohm, 1.0, "ohm"),
+            ("inductance", &self.inductance_h, 1e3, "mH"),
+        ] {
+            let _ = writeln!(
+                s,
+                "{:<16} {:>10.5} {unit:<3} {:>10.5} {unit:<3} {:>10.5} {unit:<3}",
+                p,
+                e.value * scale,
+                e.low * scale,
+                e.high * scale
+            );
+        }
+        let _ = writeln!(
+            s,
+            "\nvoltage delay {} samples (found from the data); time constant L/R {:.4} ms",
+            self.delay_samples,
+            self.inductance_h.value / self.resistance_ohm.value * 1e3
+        );
+        let _ = writeln!(
+            s,
+            "fit: normalised RMS error {:.4} (model run on its own), residual autocorrelation {:.3}; an offset and a voltage loss fitted together as a constant ({:.3e} A per sample)",
+            self.nrmse, self.residual_autocorrelation, self.constant_a
+        );
+        for w in &self.warnings {
+            let _ = writeln!(s, "warning: {w}");
+        }
+        s
+    }
+
+    /// A `[motor]` section to paste into a scenario.
+    pub fn motor_section(&self, name: &str) -> String {
+        format!(
+            "# identified by `ampwright identify` from {name}\n[motor]\nresistance_ohm = {:.6e}    # 95 %: {:.6e} to {:.6e}\ninductance_h = {:.6e}      # 95 %: {:.6e} to {:.6e}\nlocked_rotor = true             # the bench test held the rotor\n",
+            self.resistance_ohm.value,
+            self.resistance_ohm.low,
+            self.resistance_ohm.high,
+            self.inductance_h.value,
+            self.inductance_h.low,
+            self.inductance_h.high
+        )
+    }
+
+    /// The estimates as JSON, one entry per parameter named as its scenario field.
+    pub fn json(&self) -> String {
+        let v = serde_json::json!({
+            "parameters": {
+                "resistance_ohm": self.resistance_ohm,
+                "inductance_h": self.inductance_h,
+            },
+            "delay_samples": self.delay_samples,
+            "period_s": self.period_s,
+            "samples": self.samples,
+            "nrmse": self.nrmse,
+            "residual_autocorrelation": self.residual_autocorrelation,
+            "constant_a": self.constant_a,
+            "warnings": self.warnings,
+        });
+        serde_json::to_string_pretty(&v).unwrap_or_default()
+    }
+}

@@ -1,0 +1,247 @@
+//! `ampwright identify`: R and L of held windings from captures, against the
+//! values the captures were made with. The captures come from host-sim's drive
+//! chain (the real pi-core loop stepping an invented load on an averaged
+//! bridge), or are written here; the loads are invented for these tests, from
+//! tens of ohms to well under one.
+
+use host_sim::bench::capture::{self, Columns};
+use host_sim::bench::identify::identify_rl;
+use host_sim::results::report;
+use host_sim::scenario::Params;
+use pi_core::identify::RlIdentifier;
+
+const VALVE: &str = include_str!("../host-sim/captures/valve_coil_bench.toml");
+const VALVE_CSV: &str = include_str!("../host-sim/captures/valve_coil_bench.csv");
+
+fn capture_of(text: &str, cols: &Columns) -> capture::Capture {
+    capture::read(text.as_bytes(), "capture", cols).unwrap()
+}
+
+/// A run of the valve scenario with another load, as a capture (CSV text).
+fn bench_run(r: f64, l: f64, step_a: f64, shunt_ohm: f64) -> String {
+    let tau = l / r;
+    let text = ampwright_tests::edited(
+        VALVE,
+        &[
+            ("resistance_ohm", &format!("resistance_ohm = {r}")),
+            ("inductance_h", &format!("inductance_h = {l}")),
+            ("duration_s", &format!("duration_s = {}", 24.0 * tau)),
+            ("shunt_ohm", &format!("shunt_ohm = {shunt_ohm}")),
+            ("min_a", &format!("min_a = {}", -2.0 * step_a)),
+            ("max_a", &format!("max_a = {}", 2.0 * step_a)),
+            (
+                "slew_a_per_s",
+                &format!("slew_a_per_s = {}", 100.0 * step_a / tau),
+            ),
+            ("overcurrent_a", &format!("overcurrent_a = {}", 2.5 * step_a)),
+            ("settling_time_s", &format!("settling_time_s = {}", 3.0 * tau)),
+        ],
+    );
+    // Three steps, each left to settle for eight time constants.
+    let text = text
+        .replace("at_s = 5e-3", &format!("at_s = {}", 0.2 * tau))
+        .replace("at_s = 70e-3", &format!("at_s = {}", 8.0 * tau))
+        .replace("at_s = 135e-3", &format!("at_s = {}", 16.0 * tau))
+        .replace("current_a = 0.3", &format!("current_a = {}", step_a))
+        .replace("current_a = 0.6", &format!("current_a = {}", 2.0 * step_a))
+        .replace("current_a = -0.2", &format!("current_a = {}", -0.7 * step_a));
+    let s = Params::from_toml(&text, "t").unwrap();
+    let prepared = host_sim::prepare::prepare(s).unwrap();
+    let (trace, _) = report::run(&prepared.scenario, None, &mut |_| {}).unwrap();
+    let mut csv = Vec::new();
+    trace.write_csv(&mut csv).unwrap();
+    String::from_utf8(csv).unwrap()
+}
+
+#[test]
+fn the_simulators_trace_reads_as_a_capture_and_gives_back_the_coil() {
+    // The committed capture is `ampwright simulate`'s trace of the valve test.
+    let c = capture_of(VALVE_CSV, &Columns::default());
+    assert_eq!(c.voltage_from, "duty x bus_v");
+    assert!((c.period_s - 50e-6).abs() < 1e-12);
+    let fit = identify_rl(&c, "valve", None).unwrap();
+    // The path the current takes includes two switches of 0.02 ohm.
+    let r = 18.5 + 2.0 * 0.02;
+    println!("{}", fit.table("valve"));
+    assert!(
+        (fit.resistance_ohm.value - r).abs() < 0.005 * r,
+        "{:?}",
+        fit.resistance_ohm
+    );
+    assert!(
+        (fit.inductance_h.value - 0.22).abs() < 0.005 * 0.22,
+        "{:?}",
+        fit.inductance_h
+    );
+    assert!(fit.resistance_ohm.low <= r && r <= fit.resistance_ohm.high + 0.005 * r);
+    assert_eq!(
+        fit.delay_samples, 1,
+        "the duty reaches the bridge one period late"
+    );
+}
+
+#[test]
+fn loads_from_tens_of_ohms_to_under_one_are_identified_within_2_percent() {
+    // (R ohm, L H, step A, shunt ohm): invented loads.
+    for (r, l, step, shunt) in [
+        (45.0, 0.6, 0.2, 0.2),
+        (3.2, 4e-3, 2.0, 0.02),
+        (0.4, 0.3e-3, 12.0, 0.002),
+    ] {
+        let csv = bench_run(r, l, step, shunt);
+        let c = capture_of(&csv, &Columns::default());
+        let fit = identify_rl(&c, "bench", None).unwrap();
+        let r_path = r + 2.0 * 0.02;
+        println!(
+            "R {r} (+0.04 in the bridge) L {l}: {:.5} ohm, {:.6e} H",
+            fit.resistance_ohm.value, fit.inductance_h.value
+        );
+        assert!(
+            (fit.resistance_ohm.value - r_path).abs() < 0.02 * r_path,
+            "{r}: {:?}",
+            fit.resistance_ohm
+        );
+        assert!(
+            (fit.inductance_h.value - l).abs() < 0.02 * l,
+            "{l}: {:?}",
+            fit.inductance_h
+        );
+    }
+}
+
+/// A clean locked-rotor voltage step, written as a bench capture with a
+/// terminal voltage column.
+fn clean_step(r: f64, l: f64, ts: f64, n: usize) -> String {
+    let mut s = String::from("time_s,voltage_v,current_a\n");
+    let (a, b) = ((-r * ts / l).exp(), (1.0 - (-r * ts / l).exp()) / r);
+    let mut i = 0.0;
+    for k in 0..n {
+        let v = if k < 10 { 0.0 } else { 12.0 };
+        s.push_str(&format!("{:.12e},{v},{:.12e}\n", k as f64 * ts, i));
+        i = a * i + b * v;
+    }
+    s
+}
+
+#[test]
+fn the_time_constant_at_63_percent_agrees_with_the_fitted_l_over_r() {
+    // Common practice: on a clean step the current reaches 1 - 1/e = 63.2 %
+    // of its final value one time constant after the step.
+    let (r, l, ts) = (7.5, 9e-3, 20e-6);
+    let c = capture_of(&clean_step(r, l, ts, 3000), &Columns::default());
+    let fit = identify_rl(&c, "step", None).unwrap();
+    let final_a = *c.current_a.last().unwrap();
+    let level = final_a * (1.0 - (-1.0f64).exp());
+    let k = c.current_a.iter().position(|&i| i >= level).unwrap();
+    let f = (level - c.current_a[k - 1]) / (c.current_a[k] - c.current_a[k - 1]);
+    let t63 = c.time_s[k - 1] + f * ts - c.time_s[10];
+    let tau = fit.inductance_h.value / fit.resistance_ohm.value;
+    assert!(
+        (t63 - tau).abs() < 0.01 * tau,
+        "63 %: {t63} s, fitted L/R: {tau} s"
+    );
+    assert!((tau - l / r).abs() < 1e-6 * tau);
+}
+
+#[test]
+fn the_device_identifier_in_f32_is_within_1_percent_of_the_hosts() {
+    let c = capture_of(VALVE_CSV, &Columns::default());
+    let mut id32 = RlIdentifier::new(c.period_s as f32);
+    let mut id64 = RlIdentifier::new(c.period_s);
+    for k in 1..c.current_a.len() {
+        id32.sample(c.voltage_v[k - 1] as f32, c.current_a[k] as f32);
+        id64.sample(c.voltage_v[k - 1], c.current_a[k]);
+    }
+    let (a, b) = (id32.estimate().unwrap(), id64.estimate().unwrap());
+    assert!(
+        ((a.resistance_ohm as f64) - b.resistance_ohm).abs() < 0.01 * b.resistance_ohm,
+        "{a:?} {b:?}"
+    );
+    assert!(
+        ((a.inductance_h as f64) - b.inductance_h).abs() < 0.01 * b.inductance_h,
+        "{a:?} {b:?}"
+    );
+}
+
+#[test]
+fn bad_captures_are_refused_in_one_sentence() {
+    let good = clean_step(7.5, 9e-3, 20e-6, 200);
+    let lines: Vec<&str> = good.lines().collect();
+    let cases: Vec<(String, &str)> = vec![
+        (lines[1..].join("\n"), "has no header row"),
+        (
+            format!("{}\n{}\n{}", lines[0], lines[1..].join("\n"), lines[5]),
+            "time does not increase",
+        ),
+        (
+            good.replacen(&lines[50].to_string(), "5e-4,12,NaN", 1),
+            "is not a finite number",
+        ),
+        (lines[..10].join("\n"), "identification needs at least 20"),
+        (good.replace(",12,", ",0,"), "never changes"),
+        (
+            lines
+                .iter()
+                .enumerate()
+                .map(|(k, l)| {
+                    if k == 100 {
+                        "1.99e-3,12,0.5".to_string()
+                    } else {
+                        l.to_string()
+                    }
+                })
+                .collect::<Vec<_>>()
+                .join("\n"),
+            "the sample period wanders",
+        ),
+        ("t,i\n0,1\n".to_string(), "has no time_s"),
+    ];
+    for (text, expected) in cases {
+        let e = capture::read(text.as_bytes(), "cap.csv", &Columns::default())
+            .unwrap_err()
+            .to_string();
+        assert!(e.contains(expected), "expected {expected:?}: {e}");
+        assert!(!e.contains('\n'), "one sentence: {e}");
+    }
+    // A current held at a rail while the voltage changes.
+    let mut clipped = String::from("time_s,voltage_v,current_a\n");
+    for k in 0..100 {
+        let v = if k < 10 { 0.0 } else { 5.0 + k as f64 * 0.1 };
+        let i = if k < 50 { k as f64 * 0.03 } else { 1.5 };
+        clipped.push_str(&format!("{},{v},{i}\n", k as f64 * 1e-4));
+    }
+    let e = capture::read(clipped.as_bytes(), "clip.csv", &Columns::default())
+        .unwrap_err()
+        .to_string();
+    assert!(e.contains("clipped at the sensor's rail"), "{e}");
+}
+
+#[test]
+fn the_command_prints_the_table_writes_the_section_and_the_picture() {
+    let dir = ampwright_tests::temp_dir("identify-cli");
+    let path = std::path::PathBuf::from(env!("CARGO_MANIFEST_DIR"))
+        .join("../host-sim/captures/valve_coil_bench.csv");
+    let args = [
+        "ampwright",
+        "identify",
+        path.to_str().unwrap(),
+        "--out",
+        dir.to_str().unwrap(),
+    ];
+    assert_eq!(host_sim::cli::main(args.map(Into::into)), 0);
+    let section = std::fs::read_to_string(dir.join("valve_coil_bench-motor.toml")).unwrap();
+    let parsed: toml::Table = toml::from_str(&section).unwrap();
+    let r = parsed["motor"]["resistance_ohm"].as_float().unwrap();
+    assert!((r - 18.54).abs() < 0.1, "{r}");
+    let svg = std::fs::read_to_string(dir.join("valve_coil_bench-fit.svg")).unwrap();
+    assert!(svg.contains("fitted model") && svg.contains("measured - model"));
+    // A scale that makes no sense is bad input.
+    let args = [
+        "ampwright",
+        "identify",
+        path.to_str().unwrap(),
+        "--current-scale",
+        "0",
+    ];
+    assert_eq!(host_sim::cli::main(args.map(Into::into)), 2);
+}
