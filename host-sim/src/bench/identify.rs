@@ -1,8 +1,10 @@
-//! R and L of a held rotor (or any R-L load) from a capture: pi-core's
-//! recursive least squares ([`pi_core::identify`]) on the exact zero-order-hold
-//! model, with the voltage's delay behind the samples found from the data
-//! (the whole number of samples, 0 to [`MAX_DELAY_SAMPLES`], whose fit leaves
-//! the least residual), 95 % intervals from the fit's covariance, and the
+//! R and L of a held rotor (or any R-L load) from a capture, in two stages:
+//! pi-core's recursive least squares ([`pi_core::identify`]) on the exact
+//! zero-order-hold model, with the voltage's delay behind the samples found
+//! from the data (the whole number of samples, 0 to [`MAX_DELAY_SAMPLES`],
+//! whose fit leaves the least residual); then the model's own output fitted
+//! to the capture ([`super::refine`]), which noise in the measured current
+//! does not bias. 95 % intervals from the second fit's covariance, and the
 //! fit's quality: the normalised RMS error of the model run on its own from
 //! the first sample, and the residual's autocorrelation at one sample.
 
@@ -47,9 +49,16 @@ pub struct RlFit {
     pub resistance_ohm: Estimate,
     /// Inductance, H.
     pub inductance_h: Estimate,
-    /// The nuisance constant per sample, A (a sensor offset and a voltage
-    /// lost in the bridge, together).
-    pub constant_a: f64,
+    /// The nuisance offset, A: a sensor offset and a constant voltage lost in
+    /// the bridge (divided by R), which voltage and current cannot tell apart.
+    pub offset_a: f64,
+    /// The stage that gave the estimates (`output error`, or the one-step
+    /// least squares when the second stage could not improve on it).
+    pub stage: &'static str,
+    /// The one-step least squares' resistance, ohm (the start).
+    pub linear_resistance_ohm: f64,
+    /// Its inductance, H.
+    pub linear_inductance_h: f64,
     /// The voltage's delay behind the samples, whole samples.
     pub delay_samples: usize,
     /// The sample period, s.
@@ -84,33 +93,76 @@ pub fn identify_rl(c: &Capture, name: &str, delay: Option<usize>) -> Result<RlFi
         Some(d) => vec![d],
         None => (0..=MAX_DELAY_SAMPLES).collect(),
     };
-    let (d, id) = candidates
-        .into_iter()
-        .filter_map(|d| fit(c, d).map(|(id, s2)| (d, id, s2)))
-        .min_by(|a, b| a.2.total_cmp(&b.2))
-        .map(|(d, id, _)| (d, id))
-        .ok_or_else(|| {
-            CaptureError(format!(
-                "{name}: the samples do not fit an R-L load at this sample period ({:e} s) with any voltage delay up to {MAX_DELAY_SAMPLES} samples; check the columns, their scales and where the voltage comes from ({})",
-                c.period_s, c.voltage_from
-            ))
-        })?;
-    let e = id
-        .estimate()
-        .map_err(|why| CaptureError(format!("{name}: {why}")))?;
-    let [a_minus_1, b, k0] = id.rls().theta();
-    let a = 1.0 + a_minus_1;
-    // The model on its own from the first sample.
-    let n = c.current_a.len();
-    let mut model = vec![c.current_a[0]; n];
-    for k in 1..n {
-        let v = if k > d {
-            c.voltage_v[k - 1 - d]
-        } else {
-            c.voltage_v[0]
-        };
-        model[k] = a * model[k - 1] + b * v + k0;
+    // Each delay: the one-step least squares, then the output-error fit from
+    // it; the delay whose output-error fit leaves the least residual wins
+    // (noise in the current biases the first stage's own choice).
+    struct Tried {
+        d: usize,
+        linear: pi_core::identify::RlEstimate<f64>,
+        refined: Option<super::refine::Refined>,
+        offset0: f64,
+        score: f64,
     }
+    let tried: Vec<Tried> = candidates
+        .into_iter()
+        .filter_map(|d| {
+            let (id, s2) = fit(c, d)?;
+            let linear = id.estimate().ok()?;
+            let [a_minus_1, _, k0] = id.rls().theta();
+            let offset0 = if a_minus_1 != 0.0 { -k0 / a_minus_1 } else { 0.0 };
+            let refined = super::refine::refine(
+                [linear.resistance_ohm, linear.inductance_h, offset0],
+                c.period_s,
+                d,
+                &c.current_a,
+                &c.voltage_v,
+            )
+            .filter(|f| f.theta[0] > 0.0 && f.theta[1] > 0.0);
+            let score = refined.map_or(s2 * 1e12, |f| f.sse);
+            Some(Tried {
+                d,
+                linear,
+                refined,
+                offset0,
+                score,
+            })
+        })
+        .collect();
+    let best = tried.iter().min_by(|a, b| a.score.total_cmp(&b.score)).ok_or_else(|| {
+        CaptureError(format!(
+            "{name}: the samples do not fit an R-L load at this sample period ({:e} s) with any voltage delay up to {MAX_DELAY_SAMPLES} samples; check the columns, their scales and where the voltage comes from ({})",
+            c.period_s, c.voltage_from
+        ))
+    })?;
+    let (d, linear) = (best.d, best.linear);
+    let (e_r, e_l, offset, sd_r, sd_l, stage) = match best.refined {
+        Some(f) => (
+            f.theta[0],
+            f.theta[1],
+            f.theta[2],
+            f.sd[0],
+            f.sd[1],
+            "output error",
+        ),
+        None => (
+            linear.resistance_ohm,
+            linear.inductance_h,
+            best.offset0,
+            linear.resistance_sd_ohm,
+            linear.inductance_sd_h,
+            "one-step least squares",
+        ),
+    };
+    let n = c.current_a.len();
+    let mut model = Vec::with_capacity(n);
+    super::refine::simulate(
+        &[e_r, e_l, offset],
+        c.period_s,
+        d,
+        c.current_a[0],
+        &c.voltage_v,
+        &mut model,
+    );
     let mean = c.current_a.iter().sum::<f64>() / n as f64;
     let spread = (c.current_a.iter().map(|i| (i - mean).powi(2)).sum::<f64>() / n as f64).sqrt();
     let err = (c
@@ -122,16 +174,14 @@ pub fn identify_rl(c: &Capture, name: &str, delay: Option<usize>) -> Result<RlFi
         / n as f64)
         .sqrt();
     let nrmse = if spread > 0.0 { err / spread } else { f64::INFINITY };
-    // One-step residuals and their lag-1 autocorrelation.
-    let resid: Vec<f64> = (1 + d..n)
-        .map(|k| c.current_a[k] - (a * c.current_a[k - 1] + b * c.voltage_v[k - 1 - d] + k0))
-        .collect();
+    // The residuals of the model's own output and their lag-1 autocorrelation.
+    let resid: Vec<f64> = c.current_a.iter().zip(&model).map(|(y, m)| y - m).collect();
     let rm = resid.iter().sum::<f64>() / resid.len().max(1) as f64;
     let var = resid.iter().map(|r| (r - rm).powi(2)).sum::<f64>();
     let cov = resid.windows(2).map(|w| (w[0] - rm) * (w[1] - rm)).sum::<f64>();
     let rho = if var > 0.0 { cov / var } else { 0.0 };
     let mut warnings = Vec::new();
-    let tau = e.inductance_h / e.resistance_ohm;
+    let tau = e_l / e_r;
     let span_s = c.period_s * n as f64;
     if span_s < 3.0 * tau {
         warnings.push(format!(
@@ -146,15 +196,18 @@ pub fn identify_rl(c: &Capture, name: &str, delay: Option<usize>) -> Result<RlFi
             tau * 1e6
         ));
     }
-    if rho.abs() > RESIDUAL_CORRELATION_WARN {
+    if rho.abs() > RESIDUAL_CORRELATION_WARN && stage == "one-step least squares" {
         warnings.push(format!(
             "the residual is correlated from sample to sample ({rho:.2}): the R-L model misses something (a turning rotor's back-EMF, a delay that is not whole samples, a filter); the intervals are too narrow"
         ));
     }
     Ok(RlFit {
-        resistance_ohm: Estimate::of(e.resistance_ohm, e.resistance_sd_ohm),
-        inductance_h: Estimate::of(e.inductance_h, e.inductance_sd_h),
-        constant_a: e.constant_a,
+        resistance_ohm: Estimate::of(e_r, sd_r),
+        inductance_h: Estimate::of(e_l, sd_l),
+        offset_a: offset,
+        stage,
+        linear_resistance_ohm: linear.resistance_ohm,
+        linear_inductance_h: linear.inductance_h,
         delay_samples: d,
         period_s: c.period_s,
         samples: n,
@@ -202,8 +255,13 @@ impl RlFit {
         );
         let _ = writeln!(
             s,
-            "fit: normalised RMS error {:.4} (model run on its own), residual autocorrelation {:.3}; an offset and a voltage loss fitted together as a constant ({:.3e} A per sample)",
-            self.nrmse, self.residual_autocorrelation, self.constant_a
+            "fit ({}): normalised RMS error {:.4} (model run on its own), residual autocorrelation {:.3}; a sensor offset and a bridge's voltage loss fitted together as one offset ({:.3e} A); the one-step least squares gave {:.5} ohm, {:.5} mH",
+            self.stage,
+            self.nrmse,
+            self.residual_autocorrelation,
+            self.offset_a,
+            self.linear_resistance_ohm,
+            self.linear_inductance_h * 1e3
         );
         for w in &self.warnings {
             let _ = writeln!(s, "warning: {w}");
@@ -236,7 +294,9 @@ impl RlFit {
             "samples": self.samples,
             "nrmse": self.nrmse,
             "residual_autocorrelation": self.residual_autocorrelation,
-            "constant_a": self.constant_a,
+            "offset_a": self.offset_a,
+            "stage": self.stage,
+            "linear_stage": { "resistance_ohm": self.linear_resistance_ohm, "inductance_h": self.linear_inductance_h },
             "warnings": self.warnings,
         });
         serde_json::to_string_pretty(&v).unwrap_or_default()

@@ -4,3 +4,4 @@
 
 pub mod capture;
 pub mod identify;
+pub mod refine;
