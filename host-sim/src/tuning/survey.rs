@@ -213,11 +213,16 @@ pub fn nearest_settling(b: &Basis) -> Option<f64> {
     None
 }
 
+/// Periods a predicted step runs: six settling times, within 200 to 200,000.
+fn horizon(settling_time_s: f64, period_s: f64) -> usize {
+    ((6.0 * settling_time_s / period_s) as usize).clamp(200, 200_000)
+}
+
 /// The predicted unit step of given gains with a setpoint weight on the
 /// basis's sampled loop (the same analysis the survey uses).
 pub fn predict(b: &Basis, gains: &Gains<f64>, setpoint_weight: f64) -> Result<Predicted, ModelError> {
     let open = OpenLoop::new(&b.plant()?, &b.sampling()?, gains);
-    let steps = ((6.0 * b.settling_time_s / b.period_s) as usize).clamp(200, 200_000);
+    let steps = horizon(b.settling_time_s, b.period_s);
     Ok(analysis::predict_step(&open, b.period_s, steps, setpoint_weight).into())
 }
 
@@ -263,7 +268,7 @@ fn analyse(
     r.kp_v_per_a = Some(g.kp_v_per_a);
     r.ti_s = Some(g.ti_s);
     let ts = b.period_s;
-    let horizon = |period: f64| ((6.0 * b.settling_time_s / period) as usize).clamp(200, 200_000);
+    let horizon = |period: f64| horizon(b.settling_time_s, period);
     if let Ok(fine) = Sampling::new(ts / 100.0, 0.0, 0.0) {
         let p = analysis::predict_step(
             &OpenLoop::new(&plant, &fine, &g),
