@@ -35,7 +35,7 @@ pub fn page(title: &str, sections: &[Section]) -> String {
          h1 {{ font-size: 1.5em; }} h2 {{ font-size: 1.15em; margin-top: 1.6em; border-bottom: 1px solid #ccc; }}\n\
          table {{ border-collapse: collapse; margin: 0.6em 0; }}\n\
          th, td {{ border: 1px solid #ccc; padding: 0.25em 0.6em; text-align: right; }}\n\
-         th {{ background: #f2f2f2; }} td:first-child, th:first-child {{ text-align: left; }}\n\
+         th {{ background: #f2f2f2; }} td:first-child, th:first-child, td.w {{ text-align: left; }}\n\
          pre {{ background: #f7f7f7; padding: 0.8em; overflow-x: auto; font-size: 0.85em; }}\n\
          figure {{ margin: 1em 0; }} figcaption {{ color: #555; font-size: 0.9em; }}\n\
          svg {{ max-width: 100%; height: auto; }}\n</style>\n</head>\n<body>\n<h1>{}</h1>\n",
@@ -59,7 +59,10 @@ pub fn page(title: &str, sections: &[Section]) -> String {
                 for r in rows {
                     let _ = write!(s, "<tr>");
                     for c in r {
-                        let _ = write!(s, "<td>{}</td>", esc(c));
+                        // Numbers line up on the right, words read from the left.
+                        let numeric = c == "-" || c.trim().parse::<f64>().is_ok();
+                        let class = if numeric { "" } else { " class=\"w\"" };
+                        let _ = write!(s, "<td{class}>{}</td>", esc(c));
                     }
                     let _ = writeln!(s, "</tr>");
                 }
@@ -92,7 +95,7 @@ mod tests {
         let p = page(
             "a <b> & c",
             &[
-                Section::Table(vec!["x".into()], vec![vec!["1 < 2".into()]]),
+                Section::Table(vec!["x".into()], vec![vec!["1 < 2".into()], vec!["2.5".into()]]),
                 Section::Picture(
                     "fig".into(),
                     "<svg xmlns=\"http://www.w3.org/2000/svg\"></svg>".into(),
@@ -100,7 +103,8 @@ mod tests {
             ],
         );
         assert!(p.contains("<title>a &lt;b&gt; &amp; c</title>"));
-        assert!(p.contains("<td>1 &lt; 2</td>"));
+        assert!(p.contains("<td class=\"w\">1 &lt; 2</td>"), "words left");
+        assert!(p.contains("<td>2.5</td>"), "numbers right");
         assert!(p.contains("<svg xmlns"));
         // Nothing loaded from elsewhere: no script, link, image or url().
         for outside in ["<script", "<link", "<img", "url(", "@import"] {
