@@ -140,6 +140,14 @@ pub enum BridgeState {
 }
 
 impl BridgeState {
+    /// Every state, in the order of their discriminants.
+    pub const ALL: [BridgeState; 4] = [
+        BridgeState::Drive,
+        BridgeState::Recirculate,
+        BridgeState::Dead,
+        BridgeState::AllOff,
+    ];
+
     /// Diodes carry the current, so it cannot pass through zero.
     pub fn diode_clamped(self) -> bool {
         matches!(self, BridgeState::Dead | BridgeState::AllOff)
@@ -190,6 +198,55 @@ impl Pattern {
             .find(|iv| t_s < iv.end_s)
             .or(self.intervals().last())
             .map_or(BridgeState::AllOff, |iv| iv.state)
+    }
+}
+
+/// The share of one PWM period spent in each bridge state: what the averaged
+/// mode applies. The shares sum to one.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Mix {
+    /// Share per state, indexed as [`BridgeState::ALL`].
+    shares: [f64; 4],
+    /// +1 forward, -1 reverse.
+    pub sign: f64,
+}
+
+impl Mix {
+    /// Each state present in the period with its share of it.
+    pub fn shares(&self) -> impl Iterator<Item = (BridgeState, f64)> + '_ {
+        BridgeState::ALL
+            .into_iter()
+            .zip(self.shares)
+            .filter(|&(_, w)| w > 0.0)
+    }
+
+    /// Whether only diodes conduct in every state of the mix (the current can
+    /// stop at zero).
+    pub fn diode_clamped(&self) -> bool {
+        self.shares().all(|(state, _)| state.diode_clamped())
+    }
+}
+
+impl Pattern {
+    /// The period's time share per state, for a period of `period_s` seconds.
+    #[inline]
+    pub fn mix(&self, period_s: f64) -> Mix {
+        // Summed in locals, not in the array: a vector load of lanes written one
+        // by one just before stalls the processor for longer than the sums take.
+        let (mut drive, mut recirculate, mut dead, mut off) = (0.0, 0.0, 0.0, 0.0);
+        for iv in self.intervals() {
+            let w = (iv.end_s - iv.start_s) / period_s;
+            match iv.state {
+                BridgeState::Drive => drive += w,
+                BridgeState::Recirculate => recirculate += w,
+                BridgeState::Dead => dead += w,
+                BridgeState::AllOff => off += w,
+            }
+        }
+        Mix {
+            shares: [drive, recirculate, dead, off],
+            sign: self.sign,
+        }
     }
 }
 
@@ -266,6 +323,7 @@ impl Bridge {
     /// The intervals of one PWM period for a drive command. A disabled command, and
     /// a duty of zero in fast decay, leave everything off; a duty of one drives the
     /// whole period. The duty is taken as given (the controller limits it).
+    #[inline]
     pub fn pattern(&self, command: &DriveCommand) -> Pattern {
         let t = self.pwm_period_s();
         let sign = match command.direction {
@@ -318,14 +376,51 @@ impl Bridge {
         p
     }
 
+    /// The time-weighted mean of [`Bridge::output`] over a period's mix of
+    /// states, with the load carrying `current_a` throughout.
+    #[inline]
+    pub fn mean_output(&self, mix: &Mix, current_a: f64) -> Output {
+        let (i, drop) = self.frame(mix.sign, current_a);
+        let mut mean = Output {
+            terminal_v: 0.0,
+            supply_a: 0.0,
+            bus_v: 0.0,
+        };
+        // Over the four states by index, so the compiler unrolls the loop and
+        // resolves each state's match at build time.
+        for (state, w) in BridgeState::ALL.into_iter().zip(mix.shares) {
+            if w <= 0.0 {
+                continue;
+            }
+            let out = self.output_in_frame(state, mix.sign, i, drop);
+            mean.terminal_v += out.terminal_v * w;
+            mean.supply_a += out.supply_a * w;
+            mean.bus_v += out.bus_v * w;
+        }
+        mean
+    }
+
     /// What the bridge puts on the load in `state` with the load carrying
     /// `current_a`, for the direction `sign` (+1 forward, -1 reverse).
     pub fn output(&self, state: BridgeState, sign: f64, current_a: f64) -> Output {
-        let p = &self.params;
-        // Work in the frame of the switching leg: i' = sign * i, v = sign * v'.
+        let (i, drop) = self.frame(sign, current_a);
+        self.output_in_frame(state, sign, i, drop)
+    }
+
+    /// The current in the frame of the switching leg (`i' = sign * i`; the load
+    /// voltage is `v = sign * v'`), and one conducting switch's drop at it.
+    #[inline]
+    fn frame(&self, sign: f64, current_a: f64) -> (f64, f64) {
         let i = sign * current_a;
+        (i, self.params.switch.volts(i))
+    }
+
+    /// [`Bridge::output`] with the current `i` already in the leg's frame and
+    /// the switch drop `drop` at it.
+    #[inline]
+    fn output_in_frame(&self, state: BridgeState, sign: f64, i: f64, drop: f64) -> Output {
+        let p = &self.params;
         let vd = p.diode_drop_v;
-        let drop = p.switch.volts(i);
         // Supply current first (it sets the bus), then the voltage on the load.
         let supply_a = match state {
             BridgeState::Drive => i,

@@ -151,20 +151,27 @@ impl<K, V, const N: usize> Default for Recent<K, V, N> {
     }
 }
 
-impl<K: PartialEq + Copy, V: Copy, const N: usize> Recent<K, V, N> {
+impl<K: PartialEq + Copy, V, const N: usize> Recent<K, V, N> {
     /// The value for `key`, computed by `make` if it is not among the recent ones.
-    pub fn get(&mut self, key: K, make: impl FnOnce() -> V) -> V {
-        for (k, v) in self.entries.iter().flatten() {
-            if *k == key {
-                return *v;
+    #[inline]
+    pub fn get(&mut self, key: K, make: impl FnOnce() -> V) -> &V {
+        const { assert!(N > 0, "a cache of no entries") };
+        // A hit hands out a reference, not a copy; a miss empties the oldest
+        // slot and fills it.
+        let mut slot = None;
+        for (i, e) in self.entries.iter().enumerate() {
+            if matches!(e, Some((k, _)) if *k == key) {
+                slot = Some(i);
+                break;
             }
         }
-        let v = make();
-        if N > 0 {
-            self.entries[self.next] = Some((key, v));
-            self.next = (self.next + 1) % N;
-        }
-        v
+        let slot = slot.unwrap_or_else(|| {
+            let i = self.next;
+            self.entries[i] = None;
+            self.next = (i + 1) % N;
+            i
+        });
+        &self.entries[slot].get_or_insert_with(|| (key, make())).1
     }
 }
 
@@ -258,6 +265,25 @@ impl<const N: usize, const M: usize> Discrete<N, M> {
         }
         next
     }
+
+    /// [`Discrete::step`] with the input held over the interval (`u_start = u_end`),
+    /// for a block discretised with [`Discrete::zero_order_hold`] or
+    /// [`Discrete::zero_order_hold_2`], whose `gamma_end` is zero: the same sums
+    /// without the zero terms, so the same result to the bit.
+    pub fn step_held(&self, x: &[f64; N], u: &[f64; M]) -> [f64; N] {
+        let mut next = [0.0; N];
+        for i in 0..N {
+            let mut v = 0.0;
+            for j in 0..N {
+                v += self.phi[i][j] * x[j];
+            }
+            for j in 0..M {
+                v += self.gamma_start[i][j] * u[j];
+            }
+            next[i] = v;
+        }
+        next
+    }
 }
 
 impl<const M: usize> Discrete<2, M> {
@@ -295,17 +321,25 @@ impl<const M: usize> Discrete<2, M> {
         };
         // E = sum X^k / k!, P = sum X^k / (k + 1)!, 17 terms (the remainder is
         // below 0.5^17 / 17! relative).
+        // 1 / k! for k = 0..=18, so the series multiplies instead of divides.
+        const INV_FACT: [f64; 19] = {
+            let mut inv = [1.0; 19];
+            let mut k = 1;
+            while k < 19 {
+                inv[k] = inv[k - 1] / k as f64;
+                k += 1;
+            }
+            inv
+        };
         let mut power = [[1.0, 0.0], [0.0, 1.0]];
         let mut e = power;
         let mut p = power;
-        let mut fact = 1.0; // k!
         for k in 1..=17 {
             power = mul(&power, &x);
-            fact *= k as f64;
             for i in 0..2 {
                 for j in 0..2 {
-                    e[i][j] += power[i][j] / fact;
-                    p[i][j] += power[i][j] / (fact * (k + 1) as f64);
+                    e[i][j] += power[i][j] * INV_FACT[k];
+                    p[i][j] += power[i][j] * INV_FACT[k + 1];
                 }
             }
         }

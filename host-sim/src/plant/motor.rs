@@ -182,7 +182,7 @@ impl Motor {
         r.max(0.01 * self.params.resistance_ohm)
     }
 
-    fn discrete(&mut self, dt_s: f64, locked: bool) -> Discrete<2, 2> {
+    fn discrete(&mut self, dt_s: f64, locked: bool) -> &Discrete<2, 2> {
         let key = (dt_s.to_bits(), self.resistance_ohm.to_bits(), locked);
         let (p, r, augmented) = (self.params, self.resistance_ohm, self.augmented);
         self.cache
@@ -213,6 +213,7 @@ impl Motor {
     }
 
     /// Advances `dt_s` seconds with the drive held, and returns the new current.
+    #[inline]
     pub fn step(&mut self, drive: &MotorDrive, dt_s: f64) -> f64 {
         if dt_s.is_nan() || dt_s <= 0.0 {
             return self.current_a;
@@ -234,10 +235,9 @@ impl Motor {
         if locked {
             self.speed_rad_s = 0.0;
         }
-        let d = self.discrete(dt_s, locked);
         let u = [drive.terminal_v, friction - drive.load_torque_n_m];
         let w0 = self.speed_rad_s;
-        let [i1, w1] = d.step(&[i0, w0], &u, &u);
+        let [i1, w1] = self.discrete(dt_s, locked).step_held(&[i0, w0], &u);
         self.current_a = i1;
         // A sign change of the speed under Coulomb friction: the rotor sticks.
         self.speed_rad_s = if !locked && p.coulomb_n_m > 0.0 && w1 * w0 < 0.0 {

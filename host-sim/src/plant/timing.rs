@@ -51,6 +51,8 @@ pub struct Timing {
     params: TimingParams,
     pwm_period_s: f64,
     periods_per_tick: u64,
+    /// [`Timing::load_period`]'s offset without jitter, computed once.
+    nominal_load_periods: u64,
     jitter: Gaussian,
 }
 
@@ -91,12 +93,15 @@ impl Timing {
                 "shorter than one control period",
             ));
         }
-        Ok(Self {
+        let mut timing = Self {
             params,
             pwm_period_s,
             periods_per_tick: n as u64,
+            nominal_load_periods: 0,
             jitter: Gaussian::new(params.seed),
-        })
+        };
+        timing.nominal_load_periods = timing.periods_to_load(params.computation_delay_s);
+        Ok(timing)
     }
 
     /// PWM periods per control tick.
@@ -117,11 +122,13 @@ impl Timing {
     /// The PWM period index at which the duty computed from a sample taken in
     /// period `sample_period` is loaded.
     pub fn load_period(&mut self, sample_period: u64) -> u64 {
-        let mut delay = self.params.computation_delay_s;
-        if self.params.jitter_rms_s > 0.0 {
-            delay += self.params.jitter_rms_s * self.jitter.sample();
-        }
-        sample_period.saturating_add(self.periods_to_load(delay))
+        let periods = if self.params.jitter_rms_s > 0.0 {
+            let delay = self.params.computation_delay_s + self.params.jitter_rms_s * self.jitter.sample();
+            self.periods_to_load(delay)
+        } else {
+            self.nominal_load_periods
+        };
+        sample_period.saturating_add(periods)
     }
 
     /// PWM periods from the start of the sample's period to the one that loads
@@ -138,8 +145,7 @@ impl Timing {
     /// The nominal time from the sample to the new duty reaching the bridge,
     /// seconds (no jitter): what the design models as the loop's delay.
     pub fn sample_to_update_s(&self) -> f64 {
-        self.periods_to_load(self.params.computation_delay_s) as f64 * self.pwm_period_s
-            - self.sample_offset_s()
+        self.nominal_load_periods as f64 * self.pwm_period_s - self.sample_offset_s()
     }
 
     /// The parameters.

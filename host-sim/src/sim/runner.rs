@@ -25,7 +25,7 @@ use pi_core::{Command, DriveCommand};
 
 pub use super::controller::{Controller, ControllerView, LinearPi, Measurement};
 
-use crate::plant::bridge::{Bridge, BridgeState, Modulation, Pattern};
+use crate::plant::bridge::{Bridge, BridgeState, Modulation, Output, Pattern};
 use crate::plant::faults::Injectors;
 use crate::plant::motor::{Motor, MotorDrive};
 use crate::plant::sense_chain::SenseChain;
@@ -154,15 +154,20 @@ impl Runner {
 
     /// Runs until `duration_s`, calling `progress` with the fraction done about a
     /// hundred times.
-    pub fn run(&mut self, controller: &mut dyn Controller, duration_s: f64, progress: &mut dyn FnMut(f64)) {
+    pub fn run<C: Controller + ?Sized>(
+        &mut self,
+        controller: &mut C,
+        duration_s: f64,
+        progress: &mut dyn FnMut(f64),
+    ) {
         self.run_observed(controller, duration_s, progress, &mut |_, _| {});
     }
 
     /// [`Runner::run`], and `observe` called with every control tick's point
     /// and note, whether the trace keeps it or not.
-    pub fn run_observed(
+    pub fn run_observed<C: Controller + ?Sized>(
         &mut self,
-        controller: &mut dyn Controller,
+        controller: &mut C,
         duration_s: f64,
         progress: &mut dyn FnMut(f64),
         observe: &mut dyn FnMut(&TracePoint, &TickNote),
@@ -185,7 +190,7 @@ impl Runner {
     }
 
     /// Runs `ticks` control ticks.
-    pub fn run_ticks(&mut self, controller: &mut dyn Controller, ticks: u64) {
+    pub fn run_ticks<C: Controller + ?Sized>(&mut self, controller: &mut C, ticks: u64) {
         let end = self.period + ticks * self.timing.periods_per_tick();
         self.trace
             .points
@@ -196,7 +201,7 @@ impl Runner {
     }
 
     /// Advances one PWM period.
-    pub fn step_period(&mut self, controller: &mut dyn Controller) {
+    pub fn step_period<C: Controller + ?Sized>(&mut self, controller: &mut C) {
         let t_pwm = self.chain.bridge.pwm_period_s();
         let t0 = self.period as f64 * t_pwm;
         let nominal = self.chain.bridge.params().supply_v;
@@ -226,7 +231,7 @@ impl Runner {
                     let mut start = iv.start_s;
                     if !sampled && sample_at >= start && sample_at < iv.end_s {
                         self.interval(&pattern, iv.state, &drive, t0 + start, sample_at - start);
-                        let bus = self.bus_now(&pattern, Some(sample_at));
+                        let bus = self.bus_now(&pattern, sample_at);
                         self.sample(controller, t0 + sample_at, bus, self.period);
                         sampled = true;
                         start = sample_at;
@@ -235,37 +240,34 @@ impl Runner {
                 }
             }
             Modulation::Averaged => {
+                let mix = pattern.mix(t_pwm);
+                let clamped = mix.diode_clamped();
+                let mut mean = self.chain.bridge.mean_output(&mix, self.chain.motor.current_a());
                 let mut done = 0.0;
-                if tick_here {
-                    self.averaged(&pattern, &drive, sample_at);
+                if tick_here && sample_at > 0.0 {
+                    self.averaged(&mean, clamped, &drive, sample_at);
                     done = sample_at;
-                    let bus = self.bus_now(&pattern, None);
-                    self.sample(controller, t0 + sample_at, bus, self.period);
+                    // The bus at the sample and the rest of the period's drive both
+                    // follow from the current now.
+                    mean = self.chain.bridge.mean_output(&mix, self.chain.motor.current_a());
                 }
-                self.averaged(&pattern, &drive, t_pwm - done);
+                if tick_here {
+                    self.sample(controller, t0 + sample_at, mean.bus_v, self.period);
+                }
+                self.averaged(&mean, clamped, &drive, t_pwm - done);
             }
         }
         self.period += 1;
     }
 
-    /// The bus voltage at the bridge now: in the state at `at_s` into the period
-    /// (switching mode), or the period's mean at the present current (averaged).
-    fn bus_now(&self, pattern: &Pattern, at_s: Option<f64>) -> f64 {
+    /// The bus voltage at the bridge now, in the state at `at_s` into the period
+    /// (switching mode).
+    fn bus_now(&self, pattern: &Pattern, at_s: f64) -> f64 {
         let i = self.chain.motor.current_a();
-        let bridge = &self.chain.bridge;
-        match at_s {
-            Some(t) => bridge.output(pattern.state_at(t), pattern.sign, i).bus_v,
-            None => {
-                let t_pwm = bridge.pwm_period_s();
-                pattern
-                    .intervals()
-                    .iter()
-                    .map(|iv| {
-                        bridge.output(iv.state, pattern.sign, i).bus_v * (iv.end_s - iv.start_s) / t_pwm
-                    })
-                    .sum()
-            }
-        }
+        self.chain
+            .bridge
+            .output(pattern.state_at(at_s), pattern.sign, i)
+            .bus_v
     }
 
     fn load_torque(&self, t_s: f64) -> f64 {
@@ -345,30 +347,21 @@ impl Runner {
         }
     }
 
-    /// `dt_s` of the period at the pattern's mean voltage (averaged mode).
-    fn averaged(&mut self, pattern: &Pattern, drive: &MotorDrive, dt_s: f64) {
+    /// `dt_s` of the period at the mean of the bridge's output over the period
+    /// (averaged mode), taken at the current at the step's start; `clamped`
+    /// when only diodes conduct.
+    fn averaged(&mut self, mean: &Output, clamped: bool, drive: &MotorDrive, dt_s: f64) {
         if dt_s <= 0.0 {
             return;
         }
-        let i0 = self.chain.motor.current_a();
-        let t_pwm = self.chain.bridge.pwm_period_s();
-        let (mut v, mut supply) = (0.0, 0.0);
-        let mut all_clamped = true;
-        for iv in pattern.intervals() {
-            let out = self.chain.bridge.output(iv.state, pattern.sign, i0);
-            let w = (iv.end_s - iv.start_s) / t_pwm;
-            v += out.terminal_v * w;
-            supply += out.supply_a * w;
-            all_clamped &= iv.state.diode_clamped();
-        }
-        self.charge_a_s += supply * dt_s;
+        self.charge_a_s += mean.supply_a * dt_s;
         self.charge_time_s += dt_s;
-        if all_clamped {
-            self.clamped_step(v, drive, dt_s);
+        if clamped {
+            self.clamped_step(mean.terminal_v, drive, dt_s);
         } else {
             self.chain.motor.step(
                 &MotorDrive {
-                    terminal_v: v,
+                    terminal_v: mean.terminal_v,
                     ..*drive
                 },
                 dt_s,
@@ -378,7 +371,7 @@ impl Runner {
         self.chain.sense.advance(i1, dt_s);
     }
 
-    fn sample(&mut self, controller: &mut dyn Controller, t_s: f64, bus_v: f64, period: u64) {
+    fn sample<C: Controller + ?Sized>(&mut self, controller: &mut C, t_s: f64, bus_v: f64, period: u64) {
         let mut note = TickNote::default();
         // Commands from the main loop due by now.
         while let Some(ev) = self.events.get(self.next_event) {
