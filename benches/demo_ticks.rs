@@ -60,7 +60,6 @@ fn main() {
                 p.supply_a,
                 p.winding_c,
                 p.speed_rad_s,
-                p.i2t_level,
             ]
             .iter()
             .fold(h, |h, v| (h ^ v.to_bits()).wrapping_mul(0x0100_0000_01b3))

@@ -227,26 +227,11 @@ impl Mix {
     }
 }
 
-impl Pattern {
-    /// The period's time share per state, for a period of `period_s` seconds.
-    #[inline]
-    pub fn mix(&self, period_s: f64) -> Mix {
-        // Summed in locals, not in the array: a vector load of lanes written one
-        // by one just before stalls the processor for longer than the sums take.
-        let (mut drive, mut recirculate, mut dead, mut off) = (0.0, 0.0, 0.0, 0.0);
-        for iv in self.intervals() {
-            let w = (iv.end_s - iv.start_s) / period_s;
-            match iv.state {
-                BridgeState::Drive => drive += w,
-                BridgeState::Recirculate => recirculate += w,
-                BridgeState::Dead => dead += w,
-                BridgeState::AllOff => off += w,
-            }
-        }
-        Mix {
-            shares: [drive, recirculate, dead, off],
-            sign: self.sign,
-        }
+/// +1 for a forward command, -1 for a reverse one.
+fn direction_sign(command: &DriveCommand) -> f64 {
+    match command.direction {
+        Direction::Forward => 1.0,
+        Direction::Reverse => -1.0,
     }
 }
 
@@ -323,13 +308,7 @@ impl Bridge {
     /// The intervals of one PWM period for a drive command. A disabled command, and
     /// a duty of zero in fast decay, leave everything off; a duty of one drives the
     /// whole period. The duty is taken as given (the controller limits it).
-    #[inline]
     pub fn pattern(&self, command: &DriveCommand) -> Pattern {
-        let t = self.pwm_period_s();
-        let sign = match command.direction {
-            Direction::Forward => 1.0,
-            Direction::Reverse => -1.0,
-        };
         let mut p = Pattern {
             intervals: [Interval {
                 start_s: 0.0,
@@ -337,28 +316,62 @@ impl Bridge {
                 state: BridgeState::AllOff,
             }; 5],
             len: 0,
-            sign,
+            sign: direction_sign(command),
         };
+        self.lay_out(command, |start_s, end_s, state| p.push(start_s, end_s, state));
+        p
+    }
+
+    /// The share of the period each state of [`Bridge::pattern`] takes, without
+    /// the intervals: what the averaged mode needs, built in registers.
+    #[inline]
+    pub fn mix(&self, command: &DriveCommand) -> Mix {
+        let period_s = self.pwm_period_s();
+        // Summed in locals, not in an array: a vector load of lanes written one by
+        // one just before stalls the processor for longer than the sums take.
+        let (mut drive, mut recirculate, mut dead, mut off) = (0.0, 0.0, 0.0, 0.0);
+        self.lay_out(command, |start_s, end_s, state| {
+            if end_s > start_s {
+                let w = (end_s - start_s) / period_s;
+                match state {
+                    BridgeState::Drive => drive += w,
+                    BridgeState::Recirculate => recirculate += w,
+                    BridgeState::Dead => dead += w,
+                    BridgeState::AllOff => off += w,
+                }
+            }
+        });
+        Mix {
+            shares: [drive, recirculate, dead, off],
+            sign: direction_sign(command),
+        }
+    }
+
+    /// The period's intervals in order, handed to `emit` as (start, end, state);
+    /// empty ones included (the receiver drops them).
+    #[inline]
+    fn lay_out(&self, command: &DriveCommand, mut emit: impl FnMut(f64, f64, BridgeState)) {
+        let t = self.pwm_period_s();
         let duty = if command.duty.is_finite() {
             (command.duty as f64).clamp(0.0, 1.0)
         } else {
             0.0
         };
         if !command.enabled {
-            p.push(0.0, t, BridgeState::AllOff);
-            return p;
+            emit(0.0, t, BridgeState::AllOff);
+            return;
         }
         let off = match self.params.decay {
             Decay::Slow => BridgeState::Recirculate,
             Decay::Fast => BridgeState::AllOff,
         };
         if duty <= 0.0 {
-            p.push(0.0, t, off);
-            return p;
+            emit(0.0, t, off);
+            return;
         }
         if duty >= 1.0 {
-            p.push(0.0, t, BridgeState::Drive);
-            return p;
+            emit(0.0, t, BridgeState::Drive);
+            return;
         }
         let t1 = 0.5 * (1.0 - duty) * t;
         let t2 = 0.5 * (1.0 + duty) * t;
@@ -366,14 +379,13 @@ impl Bridge {
             Decay::Slow => self.params.dead_time_s,
             Decay::Fast => 0.0,
         };
-        p.push(0.0, t1, off);
+        emit(0.0, t1, off);
         let on_start = (t1 + td).min(t2);
-        p.push(t1, on_start, BridgeState::Dead);
-        p.push(on_start, t2, BridgeState::Drive);
+        emit(t1, on_start, BridgeState::Dead);
+        emit(on_start, t2, BridgeState::Drive);
         let off_start = (t2 + td).min(t);
-        p.push(t2, off_start, BridgeState::Dead);
-        p.push(off_start, t, off);
-        p
+        emit(t2, off_start, BridgeState::Dead);
+        emit(off_start, t, off);
     }
 
     /// The time-weighted mean of [`Bridge::output`] over a period's mix of

@@ -87,8 +87,6 @@ pub struct Runner {
     charge_a_s: f64,
     charge_time_s: f64,
     trace: Trace,
-    /// The last tick's point and note, every tick (thinning applies to the trace only).
-    last: Option<(TracePoint, TickNote)>,
 }
 
 impl Runner {
@@ -110,7 +108,6 @@ impl Runner {
             charge_a_s: 0.0,
             charge_time_s: 0.0,
             trace: Trace::default(),
-            last: None,
         }
     }
 
@@ -179,8 +176,7 @@ impl Runner {
         let kept = total.saturating_sub(self.period) / self.timing.periods_per_tick() / self.record_every + 1;
         self.trace.points.reserve(usize::try_from(kept).unwrap_or(0));
         while self.period < total {
-            self.step_period(controller);
-            if let Some((p, note)) = self.last.take() {
+            if let Some((p, note)) = self.step_period(controller) {
                 observe(&p, &note);
             }
             if self.period.is_multiple_of(every) {
@@ -200,8 +196,12 @@ impl Runner {
         }
     }
 
-    /// Advances one PWM period.
-    pub fn step_period<C: Controller + ?Sized>(&mut self, controller: &mut C) {
+    /// Advances one PWM period; returns the control tick's point and note when
+    /// one fell in it (every tick's, whether the trace keeps it or not).
+    pub fn step_period<C: Controller + ?Sized>(
+        &mut self,
+        controller: &mut C,
+    ) -> Option<(TracePoint, TickNote)> {
         let t_pwm = self.chain.bridge.pwm_period_s();
         let t0 = self.period as f64 * t_pwm;
         let nominal = self.chain.bridge.params().supply_v;
@@ -221,18 +221,19 @@ impl Runner {
             load_torque_n_m: load,
             held,
         };
-        let pattern = self.chain.bridge.pattern(&self.active);
         let tick_here = self.period.is_multiple_of(self.timing.periods_per_tick());
         let sample_at = self.timing.sample_offset_s();
+        let mut tick = None;
         match self.chain.bridge.params().modulation {
             Modulation::Switching => {
+                let pattern = self.chain.bridge.pattern(&self.active);
                 let mut sampled = !tick_here;
                 for iv in pattern.intervals() {
                     let mut start = iv.start_s;
                     if !sampled && sample_at >= start && sample_at < iv.end_s {
                         self.interval(&pattern, iv.state, &drive, t0 + start, sample_at - start);
                         let bus = self.bus_now(&pattern, sample_at);
-                        self.sample(controller, t0 + sample_at, bus, self.period);
+                        tick = Some(self.sample(controller, t0 + sample_at, bus, self.period));
                         sampled = true;
                         start = sample_at;
                     }
@@ -240,7 +241,7 @@ impl Runner {
                 }
             }
             Modulation::Averaged => {
-                let mix = pattern.mix(t_pwm);
+                let mix = self.chain.bridge.mix(&self.active);
                 let clamped = mix.diode_clamped();
                 let mut mean = self.chain.bridge.mean_output(&mix, self.chain.motor.current_a());
                 let mut done = 0.0;
@@ -252,12 +253,13 @@ impl Runner {
                     mean = self.chain.bridge.mean_output(&mix, self.chain.motor.current_a());
                 }
                 if tick_here {
-                    self.sample(controller, t0 + sample_at, mean.bus_v, self.period);
+                    tick = Some(self.sample(controller, t0 + sample_at, mean.bus_v, self.period));
                 }
                 self.averaged(&mean, clamped, &drive, t_pwm - done);
             }
         }
         self.period += 1;
+        tick
     }
 
     /// The bus voltage at the bridge now, in the state at `at_s` into the period
@@ -371,7 +373,13 @@ impl Runner {
         self.chain.sense.advance(i1, dt_s);
     }
 
-    fn sample<C: Controller + ?Sized>(&mut self, controller: &mut C, t_s: f64, bus_v: f64, period: u64) {
+    fn sample<C: Controller + ?Sized>(
+        &mut self,
+        controller: &mut C,
+        t_s: f64,
+        bus_v: f64,
+        period: u64,
+    ) -> (TracePoint, TickNote) {
         let mut note = TickNote::default();
         // Commands from the main loop due by now.
         while let Some(ev) = self.events.get(self.next_event) {
@@ -438,7 +446,7 @@ impl Runner {
         if keep {
             self.trace.points.push(point);
         }
-        self.last = Some((point, note));
+        (point, note)
     }
 }
 
