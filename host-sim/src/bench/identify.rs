@@ -110,8 +110,10 @@ pub fn identify_rl(c: &Capture, name: &str, delay: Option<usize>) -> Result<RlFi
             let linear = id.estimate().ok()?;
             let [a_minus_1, _, k0] = id.rls().theta();
             let offset0 = if a_minus_1 != 0.0 { -k0 / a_minus_1 } else { 0.0 };
+            // The start current: the first sample less the offset.
+            let i0 = c.current_a.first().map_or(0.0, |y0| y0 - offset0);
             let refined = super::refine::refine(
-                [linear.resistance_ohm, linear.inductance_h, offset0],
+                [linear.resistance_ohm, linear.inductance_h, offset0, i0],
                 c.period_s,
                 d,
                 &c.current_a,
@@ -135,34 +137,24 @@ pub fn identify_rl(c: &Capture, name: &str, delay: Option<usize>) -> Result<RlFi
         ))
     })?;
     let (d, linear) = (best.d, best.linear);
-    let (e_r, e_l, offset, sd_r, sd_l, stage) = match best.refined {
-        Some(f) => (
-            f.theta[0],
-            f.theta[1],
-            f.theta[2],
-            f.sd[0],
-            f.sd[1],
-            "output error",
-        ),
+    let (theta, sd_r, sd_l, stage) = match best.refined {
+        Some(f) => (f.theta, f.sd[0], f.sd[1], "output error"),
         None => (
-            linear.resistance_ohm,
-            linear.inductance_h,
-            best.offset0,
+            [
+                linear.resistance_ohm,
+                linear.inductance_h,
+                best.offset0,
+                c.current_a.first().map_or(0.0, |y0| y0 - best.offset0),
+            ],
             linear.resistance_sd_ohm,
             linear.inductance_sd_h,
             "one-step least squares",
         ),
     };
+    let [e_r, e_l, offset, _] = theta;
     let n = c.current_a.len();
     let mut model = Vec::with_capacity(n);
-    super::refine::simulate(
-        &[e_r, e_l, offset],
-        c.period_s,
-        d,
-        c.current_a[0],
-        &c.voltage_v,
-        &mut model,
-    );
+    super::refine::simulate(&theta, c.period_s, d, &c.voltage_v, &mut model);
     let mean = c.current_a.iter().sum::<f64>() / n as f64;
     let spread = (c.current_a.iter().map(|i| (i - mean).powi(2)).sum::<f64>() / n as f64).sqrt();
     let err = (c
