@@ -340,3 +340,56 @@ fn the_command_prints_the_table_writes_the_section_and_the_picture() {
     ];
     assert_eq!(host_sim::cli::main(args.map(Into::into)), 2);
 }
+
+#[derive(serde::Deserialize)]
+struct FitReference {
+    cases: Vec<FitCase>,
+}
+
+#[derive(serde::Deserialize)]
+struct FitCase {
+    name: String,
+    delay_samples: usize,
+    resistance_ohm: f64,
+    inductance_h: f64,
+}
+
+#[test]
+fn the_output_error_fit_agrees_with_scipy_least_squares_lm() {
+    // tests/reference/identify_reference.py fits the same captures with
+    // scipy.optimize.least_squares (method "lm") from its own start.
+    let reference: FitReference =
+        serde_json::from_str(include_str!("reference/identify_reference.json")).unwrap();
+    let files = [
+        ("valve_coil_bench", VALVE_CSV),
+        (
+            "pump_winding",
+            include_str!("reference/captures/pump_winding.csv"),
+        ),
+        ("relay_coil", include_str!("reference/captures/relay_coil.csv")),
+    ];
+    assert_eq!(reference.cases.len(), files.len());
+    let cols = Columns {
+        current: "measured_a".into(),
+        ..Columns::default()
+    };
+    let mut worst = 0.0f64;
+    for (case, (name, text)) in reference.cases.iter().zip(files) {
+        assert_eq!(case.name, name);
+        let fit = identify_rl(&capture_of(text, &cols), name, None).unwrap();
+        assert_eq!(fit.stage, "output error", "{name}");
+        assert_eq!(fit.delay_samples, case.delay_samples, "{name}");
+        for (ours, theirs) in [
+            (fit.resistance_ohm.value, case.resistance_ohm),
+            (fit.inductance_h.value, case.inductance_h),
+        ] {
+            let rel = (ours - theirs).abs() / theirs.abs();
+            worst = worst.max(rel);
+            assert!(
+                rel < 1e-6,
+                "{name}: {ours} here, {theirs} from scipy ({rel:.1e} apart)"
+            );
+        }
+    }
+    println!("largest relative difference from scipy's fit: {worst:.1e}");
+}
