@@ -183,3 +183,27 @@ fn the_report_pages_are_self_contained_with_their_pictures_inline() {
         }
     }
 }
+
+#[test]
+fn the_capture_pictures_are_consistent() {
+    let dir = ampwright_tests::temp_dir("capture-pictures");
+    let captures = std::path::PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("../host-sim/captures");
+    let csv = captures.join("valve_coil_bench.csv");
+    let run = |args: &[&str]| {
+        let mut all = vec!["ampwright", args[0], csv.to_str().unwrap()];
+        all.extend(&args[1..]);
+        all.extend(["--out", dir.to_str().unwrap()]);
+        host_sim::cli::main(all.iter().map(Into::into))
+    };
+    assert_eq!(run(&["identify"]), 0);
+    assert_eq!(
+        run(&[
+            "compare",
+            captures.join("valve_coil_datasheet.toml").to_str().unwrap()
+        ]),
+        0
+    );
+    for file in ["valve_coil_bench-fit.svg", "valve_coil_bench-compare.svg"] {
+        check(file, &std::fs::read_to_string(dir.join(file)).unwrap());
+    }
+}

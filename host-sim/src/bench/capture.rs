@@ -45,6 +45,8 @@ pub struct Columns {
     pub bus: String,
     /// Speed column, rad/s, if any.
     pub speed: String,
+    /// Setpoint column, A, if any (default: `request_a`, else `setpoint_a`).
+    pub setpoint: Option<String>,
 }
 
 impl Default for Columns {
@@ -59,6 +61,7 @@ impl Default for Columns {
             duty: "duty".into(),
             bus: "bus_v".into(),
             speed: "speed_rad_s".into(),
+            setpoint: None,
         }
     }
 }
@@ -74,6 +77,8 @@ pub struct Capture {
     pub voltage_v: Vec<f64>,
     /// Shaft speed, rad/s, if captured.
     pub speed_rad_s: Option<Vec<f64>>,
+    /// The current the board was asked for, A, if captured.
+    pub setpoint_a: Option<Vec<f64>>,
     /// The median sample period, s.
     pub period_s: f64,
     /// Where the voltage came from, in words (`voltage_v`, `duty x bus_v`).
@@ -144,11 +149,16 @@ pub fn read(input: impl Read, name: &str, cols: &Columns) -> Result<Capture, Cap
         ),
     };
     let speed_col = find(&cols.speed);
+    let setpoint_col = match &cols.setpoint {
+        Some(sp) => Some(need(sp, "--setpoint-column")?),
+        None => find("request_a").or_else(|| find("setpoint_a")),
+    };
     let mut c = Capture {
         time_s: Vec::new(),
         current_a: Vec::new(),
         voltage_v: Vec::new(),
         speed_rad_s: speed_col.map(|_| Vec::new()),
+        setpoint_a: setpoint_col.map(|_| Vec::new()),
         period_s: 0.0,
         voltage_from: match voltage_source {
             Some(v) => header[v].clone(),
@@ -177,6 +187,9 @@ pub fn read(input: impl Read, name: &str, cols: &Columns) -> Result<Capture, Cap
         };
         c.voltage_v.push(v);
         if let (Some(col), Some(s)) = (speed_col, c.speed_rad_s.as_mut()) {
+            s.push(num(col)?);
+        }
+        if let (Some(col), Some(s)) = (setpoint_col, c.setpoint_a.as_mut()) {
             s.push(num(col)?);
         }
     }

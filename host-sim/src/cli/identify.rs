@@ -3,9 +3,10 @@
 use std::io::Write;
 use std::path::PathBuf;
 
-use crate::bench::capture::{self, Columns};
 use crate::bench::identify::identify_rl;
 use crate::plot::fit_svg;
+
+use super::columns::ColumnArgs;
 
 /// Arguments of `ampwright identify`.
 #[derive(Debug, clap::Args)]
@@ -13,30 +14,9 @@ pub struct IdentifyArgs {
     /// The capture: a CSV with a header row (time_s, current_a, and voltage_v
     /// or duty with bus_v; `ampwright simulate`'s trace reads as it is).
     pub capture: PathBuf,
-    /// The time column (default time_s, or t_s).
-    #[arg(long)]
-    pub time_column: Option<String>,
-    /// Seconds per unit of the time column.
-    #[arg(long, default_value_t = 1.0)]
-    pub time_scale: f64,
-    /// The current column.
-    #[arg(long, default_value = "current_a")]
-    pub current_column: String,
-    /// Amperes per unit of the current column (a current probe's A/V).
-    #[arg(long, default_value_t = 1.0)]
-    pub current_scale: f64,
-    /// The terminal voltage column (default voltage_v; without it, duty x bus_v).
-    #[arg(long)]
-    pub voltage_column: Option<String>,
-    /// Volts per unit of the voltage column.
-    #[arg(long, default_value_t = 1.0)]
-    pub voltage_scale: f64,
-    /// The duty column, used with --bus-column when there is no voltage.
-    #[arg(long, default_value = "duty")]
-    pub duty_column: String,
-    /// The bus voltage column.
-    #[arg(long, default_value = "bus_v")]
-    pub bus_column: String,
+    /// Which columns hold what.
+    #[command(flatten)]
+    pub columns: ColumnArgs,
     /// The voltage's delay behind the samples, whole samples (default: found from the data).
     #[arg(long)]
     pub delay_samples: Option<usize>,
@@ -51,40 +31,12 @@ pub struct IdentifyArgs {
 /// Runs the command; returns the exit code: 0 identified, 2 a capture or an
 /// argument refused, or an output that could not be written.
 pub fn run(args: &IdentifyArgs) -> i32 {
-    for (flag, v) in [
-        ("--time-scale", args.time_scale),
-        ("--current-scale", args.current_scale),
-        ("--voltage-scale", args.voltage_scale),
-    ] {
-        if !(v.is_finite() && v != 0.0) {
-            eprintln!(
-                "ampwright: {flag} = {v} must be a finite number other than zero; give the units per column unit"
-            );
-            return 2;
-        }
-    }
     let name = args.capture.display().to_string();
-    let file = match std::fs::File::open(&args.capture) {
-        Ok(f) => f,
-        Err(e) => {
-            eprintln!("ampwright: cannot read the capture {name}: {e}; check the path");
-            return 2;
-        }
-    };
-    let cols = Columns {
-        time: args.time_column.clone(),
-        time_scale: args.time_scale,
-        current: args.current_column.clone(),
-        current_scale: args.current_scale,
-        voltage: args.voltage_column.clone(),
-        voltage_scale: args.voltage_scale,
-        duty: args.duty_column.clone(),
-        bus: args.bus_column.clone(),
-        ..Columns::default()
-    };
-    let fit = match capture::read(std::io::BufReader::new(file), &name, &cols)
-        .and_then(|c| identify_rl(&c, &name, args.delay_samples).map(|f| (c, f)))
-    {
+    let fit = match args.columns.read(&args.capture, None).and_then(|c| {
+        identify_rl(&c, &name, args.delay_samples)
+            .map(|f| (c, f))
+            .map_err(|e| e.to_string())
+    }) {
         Ok(x) => x,
         Err(e) => {
             eprintln!("ampwright: {e}");

@@ -3,9 +3,11 @@
 //!
 //! Exit codes: 0 done (and the spec, if any, met); 1 the spec is missed (a run
 //! finished but a step missed a limit, or no design method meets the spec
-//! strictly); 2 bad input (arguments, scenario, a scenario without gains whose
+//! strictly), or a comparison beyond its tolerance; 2 bad input (arguments, scenario, a scenario without gains whose
 //! spec no design meets) or an output that could not be written.
 
+pub mod columns;
+pub mod compare;
 pub mod design;
 pub mod identify;
 pub mod progress;
@@ -13,6 +15,7 @@ pub mod simulate;
 
 use std::ffi::OsString;
 
+pub use compare::CompareArgs;
 pub use design::DesignArgs;
 pub use identify::IdentifyArgs;
 pub use simulate::SimulateArgs;
@@ -43,6 +46,10 @@ pub enum CommandArgs {
     /// 95 % intervals, a `[motor]` section to paste into a scenario, and a
     /// picture of the capture against the fitted model.
     Identify(IdentifyArgs),
+    /// Compare a bench capture (CSV) with the simulation of a scenario driven
+    /// the way the board was: the steps side by side, the normalised error,
+    /// the differences in words, and a picture of the two.
+    Compare(CompareArgs),
 }
 
 /// A file name from a scenario name: letters, digits, `-` and `_` kept.
@@ -102,5 +109,6 @@ pub fn main(args: impl IntoIterator<Item = OsString>) -> i32 {
         CommandArgs::Simulate(a) => simulate::run(&a),
         CommandArgs::Design(a) => design::run(&a),
         CommandArgs::Identify(a) => identify::run(&a),
+        CommandArgs::Compare(a) => compare::run(&a),
     }
 }

@@ -1,6 +1,7 @@
-//! A capture against the model fitted to it: the measured current and the
-//! model run on its own from the first sample above, the voltage on a second
-//! axis, and the difference (measured minus model) below.
+//! A capture against a model: the measured current and the model's above (the
+//! model fitted to the capture and run on its own, or the simulation of a
+//! scenario driven the way the board was), the voltage on a second axis, and
+//! the difference (measured minus model) below.
 
 use crate::plot::svg::{Axis, Canvas, padded};
 
@@ -9,7 +10,8 @@ const MODEL: &str = "#e07a1f";
 const VOLTAGE: &str = "#8a8a8a";
 const RESIDUAL: &str = "#c62828";
 
-/// The SVG: times (s), measured and modelled current (A), voltage (V).
+/// The SVG of a capture against the model fitted to it: times (s), measured
+/// and modelled current (A), voltage (V).
 pub fn fit_svg(
     title: &str,
     subtitle: &str,
@@ -18,6 +20,25 @@ pub fn fit_svg(
     model_a: &[f64],
     voltage_v: &[f64],
 ) -> String {
+    overlay_svg(
+        title,
+        subtitle,
+        time_s,
+        (measured_a, model_a, voltage_v),
+        ("measured current", "fitted model", "measured - model"),
+    )
+}
+
+/// The same picture for any model: `series` is (measured current, model
+/// current, voltage), `names` their legend entries and the difference's.
+pub fn overlay_svg(
+    title: &str,
+    subtitle: &str,
+    time_s: &[f64],
+    series: (&[f64], &[f64], &[f64]),
+    names: (&str, &str, &str),
+) -> String {
+    let (measured_a, model_a, voltage_v) = series;
     let (w, h) = (960.0, 640.0);
     let (left, right) = (80.0, w - 80.0);
     let mut c = Canvas::new(w, h);
@@ -67,7 +88,7 @@ pub fn fit_svg(
     let fmt = |t: f64| crate::plot::svg::format_tick(t * scale);
     c.frame(&x, &yi, "", "current (A)", &fmt);
     c.right_axis(right, &yv, "voltage (V)", VOLTAGE);
-    c.frame(&x, &yr, unit, "measured - model (A)", &fmt);
+    c.frame(&x, &yr, unit, &format!("{} (A)", names.2), &fmt);
     c.text(left, 26.0, title, 15.0, "start", "#111");
     c.text(left, 44.0, subtitle, 11.0, "start", "#444");
     let stride = (time_s.len() / ((right - left) as usize * 2)).max(1);
@@ -80,9 +101,9 @@ pub fn fit_svg(
             .collect()
     };
     c.series("voltage", &pts(voltage_v, &yv), VOLTAGE, 1.0, Some("4 3"));
-    c.series("measured current", &pts(measured_a, &yi), MEASURED, 1.6, None);
-    c.series("fitted model", &pts(model_a, &yi), MODEL, 1.4, Some("6 3"));
-    c.series("measured - model", &pts(&resid, &yr), RESIDUAL, 1.0, None);
+    c.series(names.0, &pts(measured_a, &yi), MEASURED, 1.6, None);
+    c.series(names.1, &pts(model_a, &yi), MODEL, 1.4, Some("6 3"));
+    c.series(names.2, &pts(&resid, &yr), RESIDUAL, 1.0, None);
     c.legend(left, h - 40.0, right);
     c.finish()
 }

@@ -7,7 +7,7 @@ pub mod root_locus;
 pub mod step_response;
 pub mod svg;
 
-pub use fit::fit_svg;
+pub use fit::{fit_svg, overlay_svg};
 pub use frequency_response::frequency_response_svg;
 pub use long_run::long_run_svg;
 pub use root_locus::root_locus_svg;
