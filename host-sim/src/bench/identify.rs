@@ -33,7 +33,7 @@ pub struct Estimate {
 }
 
 impl Estimate {
-    fn of(value: f64, sd: f64) -> Self {
+    pub(crate) fn of(value: f64, sd: f64) -> Self {
         Self {
             value,
             low: value - Z95 * sd,

@@ -29,13 +29,14 @@
 /// How many parameters the fit has.
 pub const PARAMETERS: usize = 4;
 
-/// The fitted parameters and their standard deviations.
+/// The fitted parameters and their standard deviations (for the R-L model,
+/// `[R ohm, L H, offset A, i0 A]`).
 #[derive(Clone, Copy, Debug, PartialEq)]
-pub struct Refined {
-    /// `[R ohm, L H, offset A, i0 A]`.
-    pub theta: [f64; PARAMETERS],
+pub struct Refined<const P: usize = PARAMETERS> {
+    /// The parameters.
+    pub theta: [f64; P],
     /// Their standard deviations.
-    pub sd: [f64; PARAMETERS],
+    pub sd: [f64; P],
     /// Sum of squared residuals at the optimum, A^2.
     pub sse: f64,
     /// Iterations taken.
@@ -59,7 +60,7 @@ pub fn simulate(theta: &[f64; PARAMETERS], period_s: f64, delay: usize, v: &[f64
 
 /// Solves `m x = rhs` for a symmetric positive-definite `m` (Cholesky);
 /// `None` when it is not.
-fn solve<const N: usize>(m: &[[f64; N]; N], rhs: &[f64; N]) -> Option<[f64; N]> {
+pub(crate) fn solve<const N: usize>(m: &[[f64; N]; N], rhs: &[f64; N]) -> Option<[f64; N]> {
     let mut l = [[0.0; N]; N];
     for i in 0..N {
         for j in 0..=i {
@@ -108,11 +109,32 @@ pub fn refine(
     y: &[f64],
     v: &[f64],
 ) -> Option<Refined> {
-    const P: usize = PARAMETERS;
+    fit(
+        theta0,
+        [1e-9, 1e-12, 1e-6, 1e-6],
+        y,
+        |theta, out| simulate(theta, period_s, delay, v, out),
+        |theta| theta[0] > 0.0 && theta[1] > 0.0,
+    )
+}
+
+/// Levenberg-Marquardt on any model: the `P` parameters that make
+/// `model(theta)` closest to `y` in least squares, from `theta0`. The
+/// Jacobian is by forward differences of `1e-7` of each parameter, or of its
+/// entry in `floors` when the parameter is smaller; `valid` refuses a trial
+/// (a negative resistance, say). The standard deviations are
+/// `s^2 (J' J)^-1` at the optimum.
+pub fn fit<const P: usize>(
+    theta0: [f64; P],
+    floors: [f64; P],
+    y: &[f64],
+    model_of: impl Fn(&[f64; P], &mut Vec<f64>),
+    valid: impl Fn(&[f64; P]) -> bool,
+) -> Option<Refined<P>> {
     let n = y.len();
     let mut model = Vec::with_capacity(n);
     let sse_of = |theta: &[f64; P], model: &mut Vec<f64>| -> f64 {
-        simulate(theta, period_s, delay, v, model);
+        model_of(theta, model);
         y.iter().zip(model.iter()).map(|(a, b)| (a - b) * (a - b)).sum()
     };
     let mut theta = theta0;
@@ -121,22 +143,14 @@ pub fn refine(
     let mut iterations = 0;
     let mut jac = vec![[0.0; P]; n];
     let mut shifted = Vec::with_capacity(n);
-    let steps = |theta: &[f64; P]| {
-        [
-            1e-7 * theta[0].abs().max(1e-9),
-            1e-7 * theta[1].abs().max(1e-12),
-            1e-7 * theta[2].abs().max(1e-6),
-            1e-7 * theta[3].abs().max(1e-6),
-        ]
-    };
     let jacobian = |theta: &[f64; P], model: &[f64], jac: &mut [[f64; P]], shifted: &mut Vec<f64>| {
-        let h = steps(theta);
         for p in 0..P {
+            let h = 1e-7 * theta[p].abs().max(floors[p]);
             let mut t = *theta;
-            t[p] += h[p];
-            simulate(&t, period_s, delay, v, shifted);
+            t[p] += h;
+            model_of(&t, shifted);
             for (k, row) in jac.iter_mut().enumerate() {
-                row[p] = (shifted[k] - model[k]) / h[p];
+                row[p] = (shifted[k] - model[k]) / h;
             }
         }
     };
@@ -168,7 +182,7 @@ pub fn refine(
             for i in 0..P {
                 trial[i] += step[i];
             }
-            if !(trial[0] > 0.0 && trial[1] > 0.0) {
+            if !valid(&trial) {
                 lambda *= 10.0;
                 continue;
             }
@@ -203,25 +217,25 @@ pub fn refine(
 
 /// The result with its standard deviations, `s^2 (J' J)^-1` with `J` taken at
 /// `theta`.
-fn finish(
-    theta: [f64; PARAMETERS],
+fn finish<const P: usize>(
+    theta: [f64; P],
     sse: f64,
     n: usize,
-    jac: &[[f64; PARAMETERS]],
+    jac: &[[f64; P]],
     iterations: usize,
-) -> Option<Refined> {
-    let mut jtj = [[0.0; PARAMETERS]; PARAMETERS];
+) -> Option<Refined<P>> {
+    let mut jtj = [[0.0; P]; P];
     for row in jac {
-        for i in 0..PARAMETERS {
-            for j in 0..PARAMETERS {
+        for i in 0..P {
+            for j in 0..P {
                 jtj[i][j] += row[i] * row[j];
             }
         }
     }
-    let s2 = sse / (n.saturating_sub(PARAMETERS).max(1)) as f64;
+    let s2 = sse / (n.saturating_sub(P).max(1)) as f64;
     let inv = invert(&jtj)?;
-    let mut sd = [0.0; PARAMETERS];
-    for i in 0..PARAMETERS {
+    let mut sd = [0.0; P];
+    for i in 0..P {
         sd[i] = (s2 * inv[i][i]).max(0.0).sqrt();
     }
     Some(Refined {

@@ -4,6 +4,7 @@ use std::io::Write;
 use std::path::PathBuf;
 
 use crate::bench::identify::identify_rl;
+use crate::bench::rotor::identify_rotor;
 use crate::plot::fit_svg;
 
 use super::columns::ColumnArgs;
@@ -20,6 +21,10 @@ pub struct IdentifyArgs {
     /// The voltage's delay behind the samples, whole samples (default: found from the data).
     #[arg(long)]
     pub delay_samples: Option<usize>,
+    /// Fit a held rotor (R and L only) even when the capture's speed column
+    /// shows the rotor turning.
+    #[arg(long)]
+    pub locked_rotor: bool,
     /// Folder for the output files (created if missing).
     #[arg(long, default_value = "ampwright-out")]
     pub out: PathBuf,
@@ -32,18 +37,54 @@ pub struct IdentifyArgs {
 /// argument refused, or an output that could not be written.
 pub fn run(args: &IdentifyArgs) -> i32 {
     let name = args.capture.display().to_string();
-    let fit = match args.columns.read(&args.capture, None).and_then(|c| {
-        identify_rl(&c, &name, args.delay_samples)
-            .map(|f| (c, f))
-            .map_err(|e| e.to_string())
-    }) {
-        Ok(x) => x,
+    let cap = match args.columns.read(&args.capture, None) {
+        Ok(c) => c,
         Err(e) => {
             eprintln!("ampwright: {e}");
             return 2;
         }
     };
-    let (cap, fit) = fit;
+    // A speed column on which the rotor turns: the free-rotor fit.
+    let rotor = if args.locked_rotor {
+        None
+    } else {
+        identify_rotor(&cap, args.delay_samples)
+    };
+    let (table, section, json, model, subtitle) = match rotor {
+        Some(f) => (
+            f.table(&name),
+            f.motor_section(&name),
+            f.json(),
+            f.model_a.clone(),
+            format!(
+                "free rotor: R = {:.4} ohm, L = {:.4} mH, Ke = {:.4} mV s/rad, voltage delay {} samples; normalised RMS error {:.4}",
+                f.resistance_ohm.value,
+                f.inductance_h.value * 1e3,
+                f.back_emf_v_s_per_rad.value * 1e3,
+                f.delay_samples,
+                f.current_nrmse
+            ),
+        ),
+        None => match identify_rl(&cap, &name, args.delay_samples) {
+            Ok(f) => (
+                f.table(&name),
+                f.motor_section(&name),
+                f.json(),
+                f.model_a.clone(),
+                format!(
+                    "R = {:.4} ohm, L = {:.4} mH, voltage delay {} samples; normalised RMS error {:.4}",
+                    f.resistance_ohm.value,
+                    f.inductance_h.value * 1e3,
+                    f.delay_samples,
+                    f.nrmse
+                ),
+            ),
+            Err(e) => {
+                eprintln!("ampwright: {e}");
+                return 2;
+            }
+        },
+    };
     let stem = super::file_stem(
         &args
             .capture
@@ -53,21 +94,15 @@ pub fn run(args: &IdentifyArgs) -> i32 {
     let mut written = Vec::new();
     let outcome = super::create_out_dir(&args.out).and_then(|()| {
         let motor = args.out.join(format!("{stem}-motor.toml"));
-        super::write_with(&motor, |f| f.write_all(fit.motor_section(&name).as_bytes()))?;
+        super::write_with(&motor, |f| f.write_all(section.as_bytes()))?;
         written.push(motor.display().to_string());
         let svg = args.out.join(format!("{stem}-fit.svg"));
         let doc = fit_svg(
-            &format!("{stem}: capture and fitted R-L model"),
-            &format!(
-                "R = {:.4} ohm, L = {:.4} mH, voltage delay {} samples; normalised RMS error {:.4}",
-                fit.resistance_ohm.value,
-                fit.inductance_h.value * 1e3,
-                fit.delay_samples,
-                fit.nrmse
-            ),
+            &format!("{stem}: capture and fitted model"),
+            &subtitle,
             &cap.time_s,
             &cap.current_a,
-            &fit.model_a,
+            &model,
             &cap.voltage_v,
         );
         super::write_with(&svg, |f| f.write_all(doc.as_bytes()))?;
@@ -80,11 +115,11 @@ pub fn run(args: &IdentifyArgs) -> i32 {
     }
     let mut out = std::io::stdout().lock();
     let text = if args.json {
-        fit.json()
+        json
     } else {
-        let mut t = fit.table(&name);
+        let mut t = table;
         t.push('\n');
-        t.push_str(&fit.motor_section(&name));
+        t.push_str(&section);
         for w in &written {
             t.push_str(&format!("wrote {w}\n"));
         }

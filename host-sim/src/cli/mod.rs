@@ -42,9 +42,10 @@ pub enum CommandArgs {
     /// every method, analyse each on the sampled loop, and write the chosen
     /// gains as Rust constants and JSON, a root locus and a frequency response.
     Design(DesignArgs),
-    /// Identify a winding's R and L from a bench capture (CSV): estimates with
-    /// 95 % intervals, a `[motor]` section to paste into a scenario, and a
-    /// picture of the capture against the fitted model.
+    /// Identify the load from a bench capture (CSV): R and L of a held rotor,
+    /// and with a speed column on which the rotor turns Ke, J and friction
+    /// too; estimates with 95 % intervals, a `[motor]` section to paste into a
+    /// scenario, and a picture of the capture against the fitted model.
     Identify(IdentifyArgs),
     /// Compare a bench capture (CSV) with the simulation of a scenario driven
     /// the way the board was: the steps side by side, the normalised error,

@@ -374,11 +374,15 @@ impl Canvas {
         );
         ys.sort_by(f64::total_cmp);
         ys.dedup_by(|a, b| (y.px(*a) - y.px(*b)).abs() < 14.0);
+        // The axis title stands clear of the widest tick label.
+        let mut widest: f64 = 0.0;
         for t in ys {
             let py = y.px(t);
             self.polyline(&[(left, py), (right, py)], "#e4e4e4", 1.0, None);
             let _ = write!(self.body, r#"<g data-tick-y="{t}"></g>"#);
-            self.text(left - 6.0, py + 4.0, &format_tick(t), 11.0, "end", "#333");
+            let label = format_tick(t);
+            widest = widest.max(text_width(label.chars().count(), 11.0));
+            self.text(left - 6.0, py + 4.0, &label, 11.0, "end", "#333");
         }
         self.polyline(
             &[
@@ -400,18 +404,33 @@ impl Canvas {
             "middle",
             "#222",
         );
-        self.vtext(left - 44.0, (top + bottom) / 2.0, y_label, 12.0, "#222");
+        self.vtext(
+            (left - 6.0 - widest - 10.0).min(left - 44.0),
+            (top + bottom) / 2.0,
+            y_label,
+            12.0,
+            "#222",
+        );
     }
 
     /// Tick labels for a right y axis.
     pub fn right_axis(&mut self, x_px: f64, y: &Axis, label: &str, colour: &str) {
+        let mut widest: f64 = 0.0;
         for t in y.ticks(4) {
             let py = y.px(t);
             self.polyline(&[(x_px, py), (x_px + 4.0, py)], colour, 1.0, None);
-            self.text(x_px + 7.0, py + 4.0, &format_tick(t), 11.0, "start", colour);
+            let text = format_tick(t);
+            widest = widest.max(text_width(text.chars().count(), 11.0));
+            self.text(x_px + 7.0, py + 4.0, &text, 11.0, "start", colour);
         }
         let mid = (y.px_lo + y.px_hi) / 2.0;
-        self.vtext(x_px + 44.0, mid, label, 12.0, colour);
+        self.vtext(
+            (x_px + 7.0 + widest + 14.0).max(x_px + 44.0),
+            mid,
+            label,
+            12.0,
+            colour,
+        );
     }
 
     /// The finished document.
