@@ -70,6 +70,9 @@ pub struct RlFit {
     pub nrmse: f64,
     /// The one-step residual's autocorrelation at one sample.
     pub residual_autocorrelation: f64,
+    /// The inductance at each current level the capture visits (empty with
+    /// fewer than two steps).
+    pub inductance_by_level: Vec<super::levels::LevelInductance>,
     /// The model run on its own from the first sample, A (for the picture).
     #[serde(skip)]
     pub model_a: Vec<f64>,
@@ -193,7 +196,30 @@ pub fn identify_rl(c: &Capture, name: &str, delay: Option<usize>) -> Result<RlFi
             "the residual is correlated from sample to sample ({rho:.2}): the R-L model misses something (a turning rotor's back-EMF, a delay that is not whole samples, a filter); the intervals are too narrow"
         ));
     }
+    let inductance_by_level = super::levels::by_level(c, e_r, offset, d, e_l);
+    let by_current = |pick: fn(f64, f64) -> bool| {
+        inductance_by_level.iter().copied().reduce(|a, b| {
+            if pick(b.inductance_h.value, a.inductance_h.value) {
+                b
+            } else {
+                a
+            }
+        })
+    };
+    if let (Some(lo), Some(hi)) = (by_current(|a, b| a < b), by_current(|a, b| a > b))
+        && hi.inductance_h.value > 1.1 * lo.inductance_h.value
+        && hi.inductance_h.low > lo.inductance_h.high
+    {
+        warnings.push(format!(
+            "the inductance moves with the current, {:.4} mH settled at {:.3} A against {:.4} mH at {:.3} A (a saturating core): the single L above is an average; the table by level gives each",
+            hi.inductance_h.value * 1e3,
+            hi.current_a,
+            lo.inductance_h.value * 1e3,
+            lo.current_a
+        ));
+    }
     Ok(RlFit {
+        inductance_by_level,
         resistance_ohm: Estimate::of(e_r, sd_r),
         inductance_h: Estimate::of(e_l, sd_l),
         offset_a: offset,
@@ -255,6 +281,29 @@ impl RlFit {
             self.linear_resistance_ohm,
             self.linear_inductance_h * 1e3
         );
+        if !self.inductance_by_level.is_empty() {
+            let _ = writeln!(
+                s,
+                "\ninductance by current level (each step's transient, R and the offset held; the incremental inductance d psi / d i):"
+            );
+            let _ = writeln!(
+                s,
+                "{:>10} {:>12} {:>12} {:>14} {:>14}",
+                "at_ms", "settled_a", "step_a", "L_mH", "95 % interval"
+            );
+            for l in &self.inductance_by_level {
+                let _ = writeln!(
+                    s,
+                    "{:>10.3} {:>12.4} {:>12.4} {:>14.5} {:>6.3} to {:.3}",
+                    l.at_s * 1e3,
+                    l.current_a,
+                    l.step_a,
+                    l.inductance_h.value * 1e3,
+                    l.inductance_h.low * 1e3,
+                    l.inductance_h.high * 1e3
+                );
+            }
+        }
         for w in &self.warnings {
             let _ = writeln!(s, "warning: {w}");
         }
@@ -289,6 +338,7 @@ impl RlFit {
             "offset_a": self.offset_a,
             "stage": self.stage,
             "linear_stage": { "resistance_ohm": self.linear_resistance_ohm, "inductance_h": self.linear_inductance_h },
+            "inductance_by_level": self.inductance_by_level,
             "warnings": self.warnings,
         });
         serde_json::to_string_pretty(&v).unwrap_or_default()
