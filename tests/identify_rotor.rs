@@ -194,3 +194,80 @@ fn the_command_fits_the_free_rotor_example_and_writes_every_field() {
     let section = std::fs::read_to_string(dir.join("fan_motor_spinup-motor.toml")).unwrap();
     assert!(section.contains("locked_rotor = true"));
 }
+
+#[test]
+fn without_the_speed_ke_comes_from_the_current_once_j_is_given() {
+    // The current alone fixes Ke^2 / J; with J from a drawing, Ke follows.
+    // No Coulomb friction here: the current-only model leaves it out.
+    let m = motor(2.4, 1.5e-3, 0.05, 0.06, 2.0, 0.0);
+    let csv = capture_csv(&m);
+    let cols = Columns {
+        current: "measured_a".into(),
+        ..Columns::default()
+    };
+    let mut c = capture::read(csv.as_bytes(), "rotor.csv", &cols).unwrap();
+    c.speed_rad_s = None;
+    let rl = host_sim::bench::identify::identify_rl(&c, "rotor.csv", None).unwrap();
+    let f = host_sim::bench::rotor_current::identify_from_current(&c, &rl, m.j).unwrap();
+    let ke = f.back_emf_v_s_per_rad;
+    println!(
+        "Ke {ke:?} (true {}), R {:?}, L {:?}, nrmse {:.4}",
+        m.ke, f.resistance_ohm, f.inductance_h, f.nrmse
+    );
+    assert!((ke.value - m.ke).abs() < 0.03 * m.ke, "{ke:?}");
+    assert!((f.resistance_ohm.value - (m.r + 0.04)).abs() < 0.02 * m.r);
+    assert!((f.inductance_h.value - m.l).abs() < 0.02 * m.l);
+    // And a J off by 20 % moves Ke by its square root, as Ke^2 / J says.
+    let g = host_sim::bench::rotor_current::identify_from_current(&c, &rl, 1.2 * m.j).unwrap();
+    let ratio = g.back_emf_v_s_per_rad.value / ke.value;
+    assert!((ratio - 1.2f64.sqrt()).abs() < 0.01, "{ratio}");
+}
+
+#[test]
+fn a_free_rotor_without_its_speed_is_flagged_or_fitted_with_its_inertia() {
+    let dir = ampwright_tests::temp_dir("identify-no-speed");
+    let csv =
+        include_str!("../host-sim/captures/fan_motor_spinup.csv").replacen("speed_rad_s", "shaft_unused", 1);
+    let path = dir.join("fan_no_speed.csv");
+    std::fs::write(&path, csv).unwrap();
+    let c = capture::read(
+        std::fs::File::open(&path).unwrap(),
+        "fan_no_speed.csv",
+        &Columns::default(),
+    )
+    .unwrap();
+    assert!(c.speed_rad_s.is_none());
+    // The R-L fit says it does not fit and must not be used.
+    let rl = host_sim::bench::identify::identify_rl(&c, "fan_no_speed.csv", None).unwrap();
+    assert!(
+        rl.warnings
+            .iter()
+            .any(|w| w.contains("does not fit this capture")),
+        "{:?}",
+        rl.warnings
+    );
+    // With the inertia given the command fits Ke from the current.
+    let args = [
+        "ampwright",
+        "identify",
+        path.to_str().unwrap(),
+        "--inertia-kg-m2",
+        "2.5e-6",
+        "--out",
+        dir.to_str().unwrap(),
+    ];
+    assert_eq!(host_sim::cli::main(args.map(Into::into)), 0);
+    let section = std::fs::read_to_string(dir.join("fan_no_speed-motor.toml")).unwrap();
+    let parsed: toml::Table = toml::from_str(&section).unwrap();
+    let ke = parsed["motor"]["back_emf_v_s_per_rad"].as_float().unwrap();
+    // The fan has Coulomb friction, which this model leaves out: Ke still
+    // within 3 %.
+    assert!((ke - 0.05).abs() < 0.03 * 0.05, "{ke}");
+    let bad = [
+        "ampwright",
+        "identify",
+        path.to_str().unwrap(),
+        "--inertia-kg-m2=-1",
+    ];
+    assert_eq!(host_sim::cli::main(bad.map(Into::into)), 2);
+}

@@ -15,6 +15,9 @@ use super::capture::{Capture, CaptureError};
 
 /// The longest voltage delay tried, samples.
 pub const MAX_DELAY_SAMPLES: usize = 4;
+/// Above this normalised RMS error the R-L model is said not to fit (a
+/// choice: 5 % of the current's spread is far beyond sensor noise).
+pub const POOR_FIT_NRMSE: f64 = 0.05;
 /// Two-sided 95 % point of the normal distribution.
 pub const Z95: f64 = 1.959_963_984_540_054;
 /// A residual autocorrelation above this says the model misses something
@@ -195,6 +198,16 @@ pub fn identify_rl(c: &Capture, name: &str, delay: Option<usize>) -> Result<RlFi
         warnings.push(format!(
             "the residual is correlated from sample to sample ({rho:.2}): the R-L model misses something (a turning rotor's back-EMF, a delay that is not whole samples, a filter); the intervals are too narrow"
         ));
+    }
+    if nrmse > POOR_FIT_NRMSE {
+        warnings.push(format!(
+            "the R-L model does not fit this capture (normalised RMS error {nrmse:.3}): a turning rotor's back-EMF (give its speed column, or its inertia with --inertia-kg-m2), a saturating core or a load that is not R-L; do not use these values as they are"
+        ));
+    }
+    if sd_r > 0.5 * e_r.abs() || sd_l > 0.5 * e_l.abs() {
+        warnings.push(
+            "R or L is not determined by this capture (its 95 % interval is wider than the value): step the voltage through a range the current follows, and capture its transients".into(),
+        );
     }
     let inductance_by_level = super::levels::by_level(c, e_r, offset, d, e_l);
     let by_current = |pick: fn(f64, f64) -> bool| {

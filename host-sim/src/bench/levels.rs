@@ -36,7 +36,7 @@ pub struct LevelInductance {
 }
 
 /// Where the steps are: sample indices at which a window starts.
-fn steps(c: &Capture) -> Vec<usize> {
+pub(crate) fn steps(c: &Capture) -> Vec<usize> {
     let mut starts = Vec::new();
     match &c.setpoint_a {
         Some(sp) => {

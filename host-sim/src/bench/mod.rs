@@ -1,7 +1,8 @@
 //! The bench: captures read from CSV ([`capture`]) and the load identified
 //! from them: a held rotor or any R-L load ([`identify`]), its inductance at
 //! each current level ([`levels`]), a free rotor with
-//! its speed ([`rotor`]), both refined by the one Levenberg-Marquardt fit
+//! its speed ([`rotor`]) or, its inertia given, from the current alone
+//! ([`rotor_current`]), both refined by the one Levenberg-Marquardt fit
 //! ([`refine`]). No control math here beyond pi-core's least-squares
 //! identification and the fits' quality figures.
 
@@ -10,3 +11,4 @@ pub mod identify;
 pub mod levels;
 pub mod refine;
 pub mod rotor;
+pub mod rotor_current;

@@ -5,6 +5,7 @@ use std::path::PathBuf;
 
 use crate::bench::identify::identify_rl;
 use crate::bench::rotor::identify_rotor;
+use crate::bench::rotor_current::identify_from_current;
 use crate::plot::fit_svg;
 
 use super::columns::ColumnArgs;
@@ -21,6 +22,10 @@ pub struct IdentifyArgs {
     /// The voltage's delay behind the samples, whole samples (default: found from the data).
     #[arg(long)]
     pub delay_samples: Option<usize>,
+    /// The rotor's inertia, kg m^2, when it is known: with a free rotor and
+    /// no speed column, Ke is then fitted from the current alone.
+    #[arg(long)]
+    pub inertia_kg_m2: Option<f64>,
     /// Fit a held rotor (R and L only) even when the capture's speed column
     /// shows the rotor turning.
     #[arg(long)]
@@ -44,6 +49,14 @@ pub fn run(args: &IdentifyArgs) -> i32 {
             return 2;
         }
     };
+    if let Some(j) = args.inertia_kg_m2
+        && !(j.is_finite() && j > 0.0 && j <= 1e3)
+    {
+        eprintln!(
+            "ampwright: --inertia-kg-m2 = {j} must be above 0 and at most 1e3 kg m^2; give the rotor's inertia with its load"
+        );
+        return 2;
+    }
     // A speed column on which the rotor turns: the free-rotor fit.
     let rotor = if args.locked_rotor {
         None
@@ -66,19 +79,37 @@ pub fn run(args: &IdentifyArgs) -> i32 {
             ),
         ),
         None => match identify_rl(&cap, &name, args.delay_samples) {
-            Ok(f) => (
-                f.table(&name),
-                f.motor_section(&name),
-                f.json(),
-                f.model_a.clone(),
-                format!(
-                    "R = {:.4} ohm, L = {:.4} mH, voltage delay {} samples; normalised RMS error {:.4}",
-                    f.resistance_ohm.value,
-                    f.inductance_h.value * 1e3,
-                    f.delay_samples,
-                    f.nrmse
+            Ok(f) => match args
+                .inertia_kg_m2
+                .and_then(|j| identify_from_current(&cap, &f, j))
+            {
+                Some(g) => (
+                    g.table(&name),
+                    g.motor_section(&name),
+                    g.json(),
+                    g.model_a.clone(),
+                    format!(
+                        "free rotor from the current, J given: R = {:.4} ohm, L = {:.4} mH, Ke = {:.4} mV s/rad; normalised RMS error {:.4}",
+                        g.resistance_ohm.value,
+                        g.inductance_h.value * 1e3,
+                        g.back_emf_v_s_per_rad.value * 1e3,
+                        g.nrmse
+                    ),
                 ),
-            ),
+                None => (
+                    f.table(&name),
+                    f.motor_section(&name),
+                    f.json(),
+                    f.model_a.clone(),
+                    format!(
+                        "R = {:.4} ohm, L = {:.4} mH, voltage delay {} samples; normalised RMS error {:.4}",
+                        f.resistance_ohm.value,
+                        f.inductance_h.value * 1e3,
+                        f.delay_samples,
+                        f.nrmse
+                    ),
+                ),
+            },
             Err(e) => {
                 eprintln!("ampwright: {e}");
                 return 2;
