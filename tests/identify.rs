@@ -515,3 +515,48 @@ fn the_inductance_at_each_level_follows_a_saturating_core() {
         fit.warnings
     );
 }
+
+#[test]
+fn a_transient_of_about_one_sample_is_refused_and_a_prbs_is_fitted() {
+    // 7.5 ohm, 30 uH: L/R = 4 us against 20 us samples.
+    let fast = clean_step(7.5, 30e-6, 20e-6, 400);
+    let c = capture_of(&fast, &Columns::default());
+    let e = identify_rl(&c, "fast.csv", None).unwrap_err().to_string();
+    assert!(e.contains("too few samples in it to measure L"), "{e}");
+    assert!(!e.contains('\n'));
+    // A pseudo-random binary sequence (a 9-bit maximal-length LFSR, taps 9
+    // and 5, one bit per 4 samples) between -6 V and +6 V on an invented
+    // 3.3 ohm, 5 mH winding, noise 1 % of the top current.
+    let (r, l, ts): (f64, f64, f64) = (3.3, 5e-3, 50e-6);
+    let (a, b) = ((-r * ts / l).exp(), -(-r * ts / l).exp_m1() / r);
+    let mut lfsr: u16 = 0x1ff;
+    let mut g = Gaussian::new(5);
+    let mut text = String::from("time_s,voltage_v,current_a\n");
+    let (mut i, mut v) = (0.0, 6.0);
+    for k in 0..4000 {
+        if k % 4 == 0 {
+            let bit = ((lfsr >> 8) ^ (lfsr >> 4)) & 1;
+            lfsr = ((lfsr << 1) | bit) & 0x1ff;
+            v = if bit == 1 { 6.0 } else { -6.0 };
+        }
+        text.push_str(&format!(
+            "{:.12e},{v},{:.12e}\n",
+            k as f64 * ts,
+            i + 0.018 * g.sample()
+        ));
+        i = a * i + b * v;
+    }
+    let fit = identify_rl(&capture_of(&text, &Columns::default()), "prbs.csv", None).unwrap();
+    assert_eq!(fit.delay_samples, 0);
+    assert!(
+        (fit.resistance_ohm.value - r).abs() < 0.02 * r,
+        "{:?}",
+        fit.resistance_ohm
+    );
+    assert!(
+        (fit.inductance_h.value - l).abs() < 0.02 * l,
+        "{:?}",
+        fit.inductance_h
+    );
+    assert!(fit.resistance_ohm.low <= r && r <= fit.resistance_ohm.high);
+}

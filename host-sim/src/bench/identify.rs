@@ -15,6 +15,9 @@ use super::capture::{Capture, CaptureError};
 
 /// The longest voltage delay tried, samples.
 pub const MAX_DELAY_SAMPLES: usize = 4;
+/// A transient (one time constant L/R) shorter than this many samples is
+/// refused: too few samples in it to tell L.
+pub const MIN_TRANSIENT_SAMPLES: f64 = 1.5;
 /// Above this normalised RMS error the R-L model is said not to fit (a
 /// choice: 5 % of the current's spread is far beyond sensor noise).
 pub const POOR_FIT_NRMSE: f64 = 0.05;
@@ -187,6 +190,14 @@ pub fn identify_rl(c: &Capture, name: &str, delay: Option<usize>) -> Result<RlFi
             span_s * 1e3,
             3.0 * tau * 1e3
         ));
+    }
+    if tau.is_finite() && tau > 0.0 && tau < MIN_TRANSIENT_SAMPLES * c.period_s {
+        return Err(CaptureError(format!(
+            "{name}: the current's transient lasts {:.3} us (L/R), under {MIN_TRANSIENT_SAMPLES} samples of {:.3} us: too few samples in it to measure L; capture at least {:.0} kHz",
+            tau * 1e6,
+            c.period_s * 1e6,
+            5.0 / tau / 1e3
+        )));
     }
     if tau < 3.0 * c.period_s {
         warnings.push(format!(
