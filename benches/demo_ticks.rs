@@ -7,7 +7,21 @@
 //! cargo run --release -p ampwright-benches --example demo_ticks -- averaged 2000 100 [dump.bin]
 //! ```
 
-use host_sim::{Scenario, demo};
+use host_sim::{Scenario, TracePoint, demo};
+
+/// The figures of a point that the dump and the digest cover (the fields the
+/// older revisions' trace points have too).
+fn figures(p: &TracePoint) -> [f64; 7] {
+    [
+        p.current_a,
+        p.measured_a,
+        p.duty,
+        p.bus_v,
+        p.supply_a,
+        p.winding_c,
+        p.speed_rad_s,
+    ]
+}
 
 fn main() {
     let mut args = std::env::args().skip(1);
@@ -34,17 +48,7 @@ fn main() {
                 .trace()
                 .points
                 .iter()
-                .flat_map(|p| {
-                    [
-                        p.current_a,
-                        p.measured_a,
-                        p.duty,
-                        p.bus_v,
-                        p.supply_a,
-                        p.winding_c,
-                        p.speed_rad_s,
-                    ]
-                })
+                .flat_map(figures)
                 .flat_map(f64::to_le_bytes)
                 .collect();
             std::fs::write(path, bytes).expect("the dump file can be written");
@@ -52,17 +56,9 @@ fn main() {
         // Every recorded figure's bits folded together: a change of the last
         // bit anywhere in the run changes it.
         digest = run.trace().points.iter().fold(0, |h, p| {
-            [
-                p.current_a,
-                p.measured_a,
-                p.duty,
-                p.bus_v,
-                p.supply_a,
-                p.winding_c,
-                p.speed_rad_s,
-            ]
-            .iter()
-            .fold(h, |h, v| (h ^ v.to_bits()).wrapping_mul(0x0100_0000_01b3))
+            figures(p)
+                .iter()
+                .fold(h, |h, v| (h ^ v.to_bits()).wrapping_mul(0x0100_0000_01b3))
         });
     }
     println!("mode {mode} ticks {ticks} runs {runs} final_current_a {last:.9} digest {digest:016x}");

@@ -20,6 +20,8 @@ import time
 from pathlib import Path
 
 ROOT = Path(__file__).resolve().parents[2]
+sys.path.insert(0, str(ROOT / "benches"))
+from side_by_side import build_both  # noqa: E402
 
 
 def build(src: Path, target: Path) -> Path:
@@ -45,17 +47,7 @@ def main() -> None:
     if len(sys.argv) < 2:
         sys.exit(__doc__)
     base_rev, runs = sys.argv[1], int(sys.argv[2]) if len(sys.argv) > 2 else 5
-    work = ROOT / "target" / "cli-speed"
-    work.mkdir(parents=True, exist_ok=True)
-    base_src = work / "base-src"
-    if base_src.exists():
-        subprocess.run(["git", "worktree", "remove", "--force", str(base_src)], cwd=ROOT, check=False)
-    subprocess.run(["git", "worktree", "add", "-q", "--detach", str(base_src), base_rev], cwd=ROOT, check=True)
-    try:
-        new = build(ROOT, ROOT / "target")
-        old = build(base_src, work / "base-target")
-    finally:
-        subprocess.run(["git", "worktree", "remove", "--force", str(base_src)], cwd=ROOT, check=False)
+    new, old = build_both("cli-speed", base_rev, build)
     template = (ROOT / "host-sim" / "scenarios" / "carousel_step.toml").read_text()
     text = re.sub(r"^duration_s = .*$", "duration_s = 50.0", template, flags=re.M)
     text = re.sub(r"^mode = .*$", 'mode = "averaged"', text, flags=re.M)

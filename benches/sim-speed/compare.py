@@ -22,6 +22,8 @@ import time
 from pathlib import Path
 
 ROOT = Path(__file__).resolve().parents[2]
+sys.path.insert(0, str(ROOT / "benches"))
+from side_by_side import build_both  # noqa: E402
 TICKS, RUNS_PER_PROCESS = 2000, 1000
 EXAMPLE = """
 [[example]]
@@ -50,21 +52,13 @@ def main() -> None:
     if len(sys.argv) < 2:
         sys.exit(__doc__)
     base_rev, runs = sys.argv[1], int(sys.argv[2]) if len(sys.argv) > 2 else 7
-    work = ROOT / "target" / "sim-speed"
-    work.mkdir(parents=True, exist_ok=True)
-    base_src = work / "base-src"
-    if base_src.exists():
-        subprocess.run(["git", "worktree", "remove", "--force", str(base_src)], cwd=ROOT, check=False)
-    subprocess.run(["git", "worktree", "add", "-q", "--detach", str(base_src), base_rev], cwd=ROOT, check=True)
-    try:
-        (base_src / "benches" / "demo_ticks.rs").write_text((ROOT / "benches" / "demo_ticks.rs").read_text())
-        manifest = base_src / "benches" / "Cargo.toml"
+    def add_workload(tree: Path) -> None:
+        (tree / "benches" / "demo_ticks.rs").write_text((ROOT / "benches" / "demo_ticks.rs").read_text())
+        manifest = tree / "benches" / "Cargo.toml"
         if "demo_ticks" not in manifest.read_text():
             manifest.write_text(manifest.read_text() + EXAMPLE)
-        new = build(ROOT, ROOT / "target")
-        old = build(base_src, work / "base-target")
-    finally:
-        subprocess.run(["git", "worktree", "remove", "--force", str(base_src)], cwd=ROOT, check=False)
+
+    new, old = build_both("sim-speed", base_rev, build, add_workload)
     ticks = TICKS * RUNS_PER_PROCESS
     for mode in ("averaged", "switching"):
         times = {"base": [], "this": []}

@@ -164,23 +164,8 @@ pub fn identify_rl(c: &Capture, name: &str, delay: Option<usize>) -> Result<RlFi
     let n = c.current_a.len();
     let mut model = Vec::with_capacity(n);
     super::refine::simulate(&theta, c.period_s, d, &c.voltage_v, &mut model);
-    let mean = c.current_a.iter().sum::<f64>() / n as f64;
-    let spread = (c.current_a.iter().map(|i| (i - mean).powi(2)).sum::<f64>() / n as f64).sqrt();
-    let err = (c
-        .current_a
-        .iter()
-        .zip(&model)
-        .map(|(i, m)| (i - m).powi(2))
-        .sum::<f64>()
-        / n as f64)
-        .sqrt();
-    let nrmse = if spread > 0.0 { err / spread } else { f64::INFINITY };
-    // The residuals of the model's own output and their lag-1 autocorrelation.
-    let resid: Vec<f64> = c.current_a.iter().zip(&model).map(|(y, m)| y - m).collect();
-    let rm = resid.iter().sum::<f64>() / resid.len().max(1) as f64;
-    let var = resid.iter().map(|r| (r - rm).powi(2)).sum::<f64>();
-    let cov = resid.windows(2).map(|w| (w[0] - rm) * (w[1] - rm)).sum::<f64>();
-    let rho = if var > 0.0 { cov / var } else { 0.0 };
+    let nrmse = super::refine::nrmse(&c.current_a, &model);
+    let rho = super::refine::residual_autocorrelation(&c.current_a, &model);
     let mut warnings = Vec::new();
     let tau = e_l / e_r;
     let span_s = c.period_s * n as f64;

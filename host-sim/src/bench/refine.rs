@@ -58,6 +58,32 @@ pub fn simulate(theta: &[f64; PARAMETERS], period_s: f64, delay: usize, v: &[f64
     }
 }
 
+/// The fit's quality: the RMS of `y - model` over the RMS of `y`'s own
+/// variation (0 a perfect fit; infinite when `y` does not vary but misses).
+pub fn nrmse(y: &[f64], model: &[f64]) -> f64 {
+    let n = y.len().max(1) as f64;
+    let mean = y.iter().sum::<f64>() / n;
+    let spread = (y.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / n).sqrt();
+    let err = (y.iter().zip(model).map(|(a, b)| (a - b).powi(2)).sum::<f64>() / n).sqrt();
+    if spread > 0.0 {
+        err / spread
+    } else if err == 0.0 {
+        0.0
+    } else {
+        f64::INFINITY
+    }
+}
+
+/// The lag-1 autocorrelation of `y - model` (near 0 when the residual is
+/// white, near 1 when the model misses something slow).
+pub fn residual_autocorrelation(y: &[f64], model: &[f64]) -> f64 {
+    let r: Vec<f64> = y.iter().zip(model).map(|(a, b)| a - b).collect();
+    let mean = r.iter().sum::<f64>() / r.len().max(1) as f64;
+    let var = r.iter().map(|x| (x - mean).powi(2)).sum::<f64>();
+    let cov = r.windows(2).map(|p| (p[0] - mean) * (p[1] - mean)).sum::<f64>();
+    if var > 0.0 { cov / var } else { 0.0 }
+}
+
 /// Solves `m x = rhs` for a symmetric positive-definite `m` (Cholesky);
 /// `None` when it is not.
 pub(crate) fn solve<const N: usize>(m: &[[f64; N]; N], rhs: &[f64; N]) -> Option<[f64; N]> {

@@ -34,7 +34,7 @@ use serde::Serialize;
 
 use super::capture::Capture;
 use super::identify::{Estimate, MAX_DELAY_SAMPLES};
-use super::refine::fit;
+use super::refine::{fit, nrmse, residual_autocorrelation};
 
 /// An identified free rotor.
 #[derive(Clone, Debug, Serialize)]
@@ -120,23 +120,6 @@ fn mechanical(theta: &[f64; 4], kt: f64, ts: f64, i: &[f64], out: &mut Vec<f64>)
             next
         };
     }
-}
-
-/// Autocorrelation at one sample.
-fn autocorrelation(r: &[f64]) -> f64 {
-    let n = r.len().max(1) as f64;
-    let mean = r.iter().sum::<f64>() / n;
-    let var = r.iter().map(|x| (x - mean).powi(2)).sum::<f64>();
-    let cov = r.windows(2).map(|p| (p[0] - mean) * (p[1] - mean)).sum::<f64>();
-    if var > 0.0 { cov / var } else { 0.0 }
-}
-
-fn nrmse(y: &[f64], model: &[f64]) -> f64 {
-    let n = y.len().max(1) as f64;
-    let mean = y.iter().sum::<f64>() / n;
-    let spread = (y.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / n).sqrt();
-    let err = (y.iter().zip(model).map(|(a, b)| (a - b).powi(2)).sum::<f64>() / n).sqrt();
-    if spread > 0.0 { err / spread } else { err }
 }
 
 /// Least squares `x b = y` by the normal equations (3 columns).
@@ -235,8 +218,7 @@ pub fn identify_rotor(c: &Capture, delay: Option<usize>) -> Option<RotorFit> {
             100.0 * peak_w * ke / v.iter().fold(0.0f64, |a, x| a.max(x.abs())).max(f64::MIN_POSITIVE)
         ));
     }
-    let resid: Vec<f64> = w.iter().zip(&model_w).map(|(a, b)| a - b).collect();
-    let rho = autocorrelation(&resid);
+    let rho = residual_autocorrelation(w, &model_w);
     if rho > super::identify::RESIDUAL_CORRELATION_WARN {
         warnings.push(format!(
             "the speed's residual is correlated from sample to sample ({rho:.2}): the mechanical model misses something (a load torque, friction of another shape, a speed filter); B and Tc trade against each other and their intervals are too narrow"

@@ -104,17 +104,13 @@ pub fn identify_from_current(c: &Capture, rl: &RlFit, inertia_kg_m2: f64) -> Opt
     let (ts, j, i, v) = (c.period_s, inertia_kg_m2, &c.current_a, &c.voltage_v);
     let mut model_a = Vec::with_capacity(i.len());
     simulate(&best.theta, j, ts, d, v, &mut model_a);
-    let n = i.len().max(1) as f64;
-    let mean = i.iter().sum::<f64>() / n;
-    let spread = (i.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / n).sqrt();
-    let err = (i.iter().zip(&model_a).map(|(a, b)| (a - b).powi(2)).sum::<f64>() / n).sqrt();
     Some(RotorFromCurrent {
         resistance_ohm: Estimate::of(best.theta[0], best.sd[0]),
         inductance_h: Estimate::of(best.theta[1], best.sd[1]),
         back_emf_v_s_per_rad: Estimate::of(best.theta[2], best.sd[2]),
         viscous_n_m_s_per_rad: Estimate::of(best.theta[3], best.sd[3]),
         inertia_kg_m2: j,
-        nrmse: if spread > 0.0 { err / spread } else { err },
+        nrmse: super::refine::nrmse(i, &model_a),
         model_a,
     })
 }
