@@ -44,6 +44,10 @@ PROBES = {
     "loop_overcurrent_counting": "probe_loop_tick",
     "loop_hot_winding": "probe_loop_tick",
     "loop_faulted": "probe_loop_tick",
+    "capture_idle": "probe_capture",
+    "capture_armed": "probe_capture",
+    "capture_filling": "probe_capture",
+    "capture_decimated": "probe_capture",
     "design_direct_discrete": "probe_design",
 }
 TIMEOUT_S = 120

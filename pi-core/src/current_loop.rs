@@ -689,6 +689,36 @@ impl CurrentLoop {
     pub fn config(&self) -> &LoopConfig {
         &self.config
     }
+
+    /// The current measured at the last tick, amperes.
+    #[inline(always)]
+    pub fn last_current_a(&self) -> f32 {
+        self.last_current_a
+    }
+
+    /// The target current the setpoint is approaching, amperes.
+    #[inline(always)]
+    pub fn target_a(&self) -> f32 {
+        self.setpoint.target_a()
+    }
+
+    /// The slewed setpoint the PI saw at the last tick, amperes.
+    #[inline(always)]
+    pub fn setpoint_a(&self) -> f32 {
+        self.setpoint.value_a()
+    }
+
+    /// The volts the loop asked for at the last tick (PI plus feedforward).
+    #[inline(always)]
+    pub fn commanded_v(&self) -> f32 {
+        self.last_volts
+    }
+
+    /// The drive command the last tick returned.
+    #[inline(always)]
+    pub fn last_command(&self) -> DriveCommand {
+        self.last
+    }
 }
 
 #[cfg(test)]

@@ -64,6 +64,13 @@
 //! ## Features
 //!
 //! * `defmt`: `defmt::Format` for the public types, for logging on the target.
+//! * `link`: the bench link. `capture` is a fixed-capacity record the control
+//!   interrupt fills after each tick (armed by a message, triggered at once, by
+//!   a setpoint change or by a level, with decimation); `link` holds the
+//!   messages (`link::wire`, postcard), their framing (`link::frame`: COBS
+//!   with a CRC-16) and the main-loop handler (`link::Link`), which reaches
+//!   the loop through the firmware's `link::Board`. Adds `serde`, `postcard`,
+//!   `cobs` and `crc`, none of which needs std or atomics.
 //!
 //! MSRV: Rust 1.88 (edition 2024).
 
@@ -74,6 +81,8 @@
 #[cfg(test)]
 extern crate std;
 
+#[cfg(feature = "link")]
+pub mod capture;
 pub mod current_loop;
 pub mod design;
 pub mod error;
@@ -81,6 +90,8 @@ pub mod fault;
 pub mod hal;
 pub mod handoff;
 pub mod identify;
+#[cfg(feature = "link")]
+pub mod link;
 pub mod num;
 pub mod output;
 pub mod pi;

@@ -21,6 +21,7 @@ use core::arch::asm;
 use core::hint::black_box;
 use core::panic::PanicInfo;
 
+use pi_core::capture::{Capture, CaptureSpec, Trigger};
 use pi_core::design::{RlPlant, Sampling, Spec, discrete};
 use pi_core::prelude::*;
 
@@ -149,6 +150,13 @@ fn probe_loop_tick(cl: &mut CurrentLoop, input: &TickInput) -> DriveCommand {
     cl.tick(input)
 }
 
+/// One tick's capture call, after the tick.
+#[inline(never)]
+#[unsafe(no_mangle)]
+fn probe_capture(cap: &mut Capture<CAPTURE>, cl: &CurrentLoop, input: &TickInput) {
+    cap.record(cl, input)
+}
+
 /// The on-device design routine (direct discrete placement, f32), as a retune
 /// from a bench command would run it; returns Kp or NaN.
 #[inline(never)]
@@ -187,6 +195,20 @@ fn tick_call(cl: &mut CurrentLoop, counts: u16, bus_v: f32) -> DriveCommand {
     });
     measure(|| probe_loop_tick(black_box(cl), &input))
 }
+
+/// A tick of the loop (not measured), then its capture call (measured).
+fn capture_call(cap: &mut Capture<CAPTURE>, cl: &mut CurrentLoop, counts: u16) {
+    let input = black_box(TickInput {
+        current_counts: counts,
+        bus_v: 24.0,
+        speed_rad_s: None,
+    });
+    cl.tick(&input);
+    measure(|| probe_capture(black_box(cap), black_box(cl), &input));
+}
+
+/// Samples the probe's capture holds (20 bytes each).
+const CAPTURE: usize = 64;
 
 /// A scenario: announce it, paint the stack, run `body`, report the stack.
 fn scenario(name: &[u8], body: impl FnOnce()) {
@@ -342,6 +364,38 @@ fn main() -> u32 {
     scenario(b"scenario loop_faulted\n", || {
         for _ in 0..20 {
             tick_call(&mut cl, 4095, 24.0); // sensor at the rail: faults on the first tick
+        }
+    });
+    // The capture beside a running loop: idle, armed and waiting for a
+    // setpoint change, filling every tick, filling one tick in four.
+    let Some(mut cl) = demo_loop() else { return 2 };
+    let _ = cl.apply(Command::Enable);
+    let mut cap: Capture<CAPTURE> = Capture::new();
+    scenario(b"scenario capture_idle\n", || {
+        for _ in 0..20 {
+            capture_call(&mut cap, &mut cl, counts_of(0.0));
+        }
+    });
+    scenario(b"scenario capture_armed\n", || {
+        if let Ok(spec) = CaptureSpec::new(Trigger::SetpointChange, 1, 40, CAPTURE) {
+            let _ = cap.arm(spec, 0.0, 0.0);
+        }
+        for _ in 0..20 {
+            capture_call(&mut cap, &mut cl, counts_of(0.0));
+        }
+    });
+    scenario(b"scenario capture_filling\n", || {
+        let _ = cl.apply(Command::SetCurrent(1.0));
+        for _ in 0..30 {
+            capture_call(&mut cap, &mut cl, counts_of(0.2));
+        }
+    });
+    scenario(b"scenario capture_decimated\n", || {
+        if let Ok(spec) = CaptureSpec::new(Trigger::Immediate, 4, 40, CAPTURE) {
+            let _ = cap.arm(spec, 1.0, 0.2);
+        }
+        for _ in 0..40 {
+            capture_call(&mut cap, &mut cl, counts_of(0.2));
         }
     });
     scenario(b"scenario design_direct_discrete\n", || {
