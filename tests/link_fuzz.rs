@@ -10,7 +10,9 @@
 
 use pi_core::capture::{Capture, CaptureSpec, CaptureState, Sample};
 use pi_core::link::frame::{FrameDecoder, MAX_FRAME, MAX_PAYLOAD, crc16, encode, parse};
-use pi_core::link::{Board, Link, Reply, ReplyFrame, Request, RequestFrame, TriggerWire, VERSION};
+use pi_core::link::{
+    Board, Link, Reply, ReplyFrame, Request, RequestFrame, TriggerWire, VERSION, WaveformWire,
+};
 use pi_core::prelude::*;
 use pi_core::{ConfigError, LoopStatus};
 use proptest::prelude::*;
@@ -142,7 +144,7 @@ impl Board for FuzzBoard {
 }
 
 fn random_request(rng: &mut Rng) -> Request {
-    match rng.below(13) {
+    match rng.below(14) {
         0 => Request::Hello,
         1 => Request::Status,
         2 => Request::Enable,
@@ -168,6 +170,29 @@ fn random_request(rng: &mut Rng) -> Request {
             samples: rng.u16(),
         },
         10 => Request::CaptureState,
+        11 => Request::Excite {
+            waveform: match rng.below(3) {
+                0 => WaveformWire::Steps {
+                    low_v: rng.f32(),
+                    high_v: rng.f32(),
+                    hold_ticks: rng.next() as u32 >> rng.below(32),
+                },
+                1 => WaveformWire::Prbs {
+                    offset_v: rng.f32(),
+                    amplitude_v: rng.f32(),
+                    order: rng.below(20) as u8,
+                    bit_ticks: rng.u16() as u32,
+                },
+                _ => WaveformWire::Chirp {
+                    offset_v: rng.f32(),
+                    amplitude_v: rng.f32(),
+                    f0_hz: rng.f32() * 100.0,
+                    f1_hz: rng.f32() * 1000.0,
+                },
+            },
+            duration_ticks: rng.u16() as u32,
+            current_limit_a: rng.f32(),
+        },
         _ => Request::ReadCapture { first: rng.u16() },
     }
 }

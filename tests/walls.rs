@@ -76,6 +76,12 @@ fn graph(src: &Path) -> BTreeMap<String, BTreeSet<String>> {
         if m == "lib" || m == "main" || m == "bin" {
             continue;
         }
+        // A module's test file (`x/tests.rs`, `x/*_tests.rs`) is its
+        // `#[cfg(test)]` module kept beside it: tests may reach further.
+        let name = f.file_name().unwrap().to_string_lossy();
+        if f.parent() != Some(src) && (name == "tests.rs" || name.ends_with("_tests.rs")) {
+            continue;
+        }
         let text = std::fs::read_to_string(&f).unwrap();
         let refs = crate_refs(without_tests(&text));
         let e = g.entry(m.clone()).or_default();

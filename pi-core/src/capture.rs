@@ -335,6 +335,7 @@ pub(crate) fn state_code(state: LoopState) -> u8 {
         LoopState::Disabled => 0,
         LoopState::Running => 1,
         LoopState::Faulted => 2,
+        LoopState::Exciting => 3,
     }
 }
 

@@ -64,6 +64,7 @@
 //! ```
 
 use crate::error::{CommandError, ConfigError, Requirement, non_negative};
+use crate::excitation::{Excitation, ExcitationEnd, Generator};
 use crate::num::clamp;
 use crate::output::{DriveCommand, DutyMapping};
 use crate::pi::{PiConfig, PiController, PiGains};
@@ -230,6 +231,10 @@ pub enum LoopState {
     Running,
     /// Bridge off until the faults are cleared.
     Faulted,
+    /// Open loop: an excitation's voltages through the duty mapping, the
+    /// supervisor active ([`crate::excitation`]); back to `Disabled` when it
+    /// ends, to `Faulted` on a fault.
+    Exciting,
 }
 
 /// The inputs of one control tick.
@@ -258,6 +263,9 @@ pub enum Command {
     Disable,
     /// Clear latched faults (refused while a cause is present); leads to `Disabled`.
     ClearFaults,
+    /// Run an open-loop excitation; only from `Disabled` (refused while
+    /// running, exciting or faulted).
+    Excite(Excitation),
 }
 
 /// A snapshot of the loop for telemetry.
@@ -282,6 +290,8 @@ pub struct LoopStatus {
     pub command: DriveCommand,
     /// Normalised I^2t heat (1 = rated steady state), 0 without a thermal model.
     pub heat: f32,
+    /// How the last excitation ended (`None` while one runs, or before the first).
+    pub excitation_end: Option<ExcitationEnd>,
 }
 
 /// The assembled current loop.
@@ -296,6 +306,10 @@ pub struct CurrentLoop {
     last: DriveCommand,
     last_current_a: f32,
     last_volts: f32,
+    /// The excitation running (state `Exciting`).
+    excitation: Option<Generator>,
+    /// How the last excitation ended.
+    excitation_end: Option<ExcitationEnd>,
     /// No feedforward, and the PI's configured limits hold the bus's whole
     /// window: the bus alone sets the PI's limits each tick.
     bus_sets_limits: bool,
@@ -444,6 +458,8 @@ impl CurrentLoop {
             last: DriveCommand::SAFE,
             last_current_a: 0.0,
             last_volts: 0.0,
+            excitation: None,
+            excitation_end: None,
             bus_sets_limits,
             quiet: false,
             window: quiet_window.unwrap_or(QuietWindow::NONE),
@@ -508,11 +524,16 @@ impl CurrentLoop {
         let command = if !latched.is_empty() {
             if self.state != LoopState::Faulted {
                 self.stop();
+                if self.state == LoopState::Exciting {
+                    self.end_excitation(ExcitationEnd::Fault);
+                }
                 self.state = LoopState::Faulted;
             }
             DriveCommand::SAFE
         } else if self.state == LoopState::Running {
             self.run::<false>(current_a, input)
+        } else if self.state == LoopState::Exciting {
+            self.excite(current_a, input.bus_v)
         } else {
             DriveCommand::SAFE
         };
@@ -574,6 +595,40 @@ impl CurrentLoop {
         }
     }
 
+    /// An excitation's tick: its next voltage within the PI's limits and the
+    /// bus, through the duty mapping; or its end (current limit, duration).
+    fn excite(&mut self, current_a: f32, bus_v: f32) -> DriveCommand {
+        let Some(generator) = self.excitation.as_mut() else {
+            self.state = LoopState::Disabled;
+            return DriveCommand::SAFE;
+        };
+        // A NaN ends it too (the supervisor latches one first in any case).
+        if current_a.abs() > generator.current_limit_a() || current_a.is_nan() {
+            self.end_excitation(ExcitationEnd::CurrentLimit);
+            return DriveCommand::SAFE;
+        }
+        let Some(v) = generator.next() else {
+            self.end_excitation(ExcitationEnd::Completed);
+            return DriveCommand::SAFE;
+        };
+        let limits = self.config.pi.limits();
+        let available = self.config.duty.available_v(bus_v);
+        let v = clamp(clamp(v, limits.min_v(), limits.max_v()), -available, available);
+        self.last_volts = v;
+        self.config.duty.command(v, bus_v)
+    }
+
+    /// Ends the excitation: `Disabled` (unless a fault is taking the loop to
+    /// `Faulted`), safe output.
+    fn end_excitation(&mut self, why: ExcitationEnd) {
+        self.excitation = None;
+        self.excitation_end = Some(why);
+        self.last_volts = 0.0;
+        if self.state == LoopState::Exciting {
+            self.state = LoopState::Disabled;
+        }
+    }
+
     fn stop(&mut self) {
         self.pi.reset();
         self.setpoint.reset();
@@ -593,6 +648,9 @@ impl CurrentLoop {
                 if self.state == LoopState::Faulted {
                     return Err(CommandError::Faulted(self.supervisor.latched()));
                 }
+                if self.state == LoopState::Exciting {
+                    return Err(CommandError::Exciting);
+                }
                 self.setpoint.request(a)
             }
             Command::Retune(gains) => {
@@ -603,6 +661,9 @@ impl CurrentLoop {
                 let latched = self.supervisor.latched();
                 if !latched.is_empty() {
                     return Err(CommandError::Faulted(latched));
+                }
+                if self.state == LoopState::Exciting {
+                    return Err(CommandError::Exciting);
                 }
                 if self.state != LoopState::Running {
                     self.pi.reset();
@@ -615,7 +676,26 @@ impl CurrentLoop {
                     self.stop();
                     self.state = LoopState::Disabled;
                     self.last = DriveCommand::SAFE;
+                } else if self.state == LoopState::Exciting {
+                    self.end_excitation(ExcitationEnd::Disabled);
+                    self.last = DriveCommand::SAFE;
                 }
+                Ok(Acceptance::Exact)
+            }
+            Command::Excite(excitation) => {
+                let latched = self.supervisor.latched();
+                if !latched.is_empty() {
+                    return Err(CommandError::Faulted(latched));
+                }
+                match self.state {
+                    LoopState::Running => return Err(CommandError::NotWhileRunning),
+                    LoopState::Exciting => return Err(CommandError::Exciting),
+                    _ => {}
+                }
+                self.stop();
+                self.excitation = Some(Generator::new(excitation, self.config.pi.period_s()));
+                self.excitation_end = None;
+                self.state = LoopState::Exciting;
                 Ok(Acceptance::Exact)
             }
             Command::ClearFaults => {
@@ -660,6 +740,7 @@ impl CurrentLoop {
             commanded_v: self.last_volts,
             command: self.last,
             heat: self.supervisor.thermal().map_or(0.0, |t| t.heat()),
+            excitation_end: self.excitation_end,
         }
     }
 
@@ -700,6 +781,12 @@ impl CurrentLoop {
     #[inline(always)]
     pub fn target_a(&self) -> f32 {
         self.setpoint.target_a()
+    }
+
+    /// How the last excitation ended (`None` while one runs, or before the
+    /// first).
+    pub fn excitation_end(&self) -> Option<ExcitationEnd> {
+        self.excitation_end
     }
 
     /// The slewed setpoint the PI saw at the last tick, amperes.

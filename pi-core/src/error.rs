@@ -174,6 +174,8 @@ pub enum CommandError {
     ClearRefused(ClearRefused),
     /// The change is only allowed while the loop is not running; disable it first.
     NotWhileRunning,
+    /// An excitation is running; wait for its end or disable the loop.
+    Exciting,
 }
 
 impl core::error::Error for ConfigError {}
@@ -207,6 +209,10 @@ impl fmt::Display for CommandError {
                 )
             }
             CommandError::ClearRefused(e) => e.fmt(f),
+            CommandError::Exciting => write!(
+                f,
+                "an excitation is running; wait for it to end or disable the loop first"
+            ),
             CommandError::NotWhileRunning => {
                 write!(
                     f,

@@ -48,6 +48,8 @@
 //! discrete placement) and analyses any gains on the sampled loop; it is generic
 //! over `f32` (on the device, for a retune from a bench command) and `f64` (the
 //! host's `ampwright design`), and never runs inside the control interrupt.
+//! [`excitation`] drives the load open loop (voltage steps, PRBS, chirp)
+//! through the same duty mapping with the supervisor on, for identifying it.
 //! [`identify`] fits an R-L load's resistance and inductance to samples of
 //! voltage and current by recursive least squares with a fixed-size state, so
 //! a board can measure its own winding during an excitation.
@@ -86,6 +88,7 @@ pub mod capture;
 pub mod current_loop;
 pub mod design;
 pub mod error;
+pub mod excitation;
 pub mod fault;
 pub mod hal;
 pub mod handoff;

@@ -29,7 +29,7 @@ pub struct ControllerView {
     pub commanded_v: f64,
     /// Latched fault bits.
     pub fault_bits: u16,
-    /// 0 disabled, 1 running, 2 faulted.
+    /// 0 disabled, 1 running, 2 faulted, 3 exciting.
     pub state: u8,
     /// The I^2t model's heat as a fraction of its trip level (1 trips; 0
     /// when the protection is off).
@@ -73,6 +73,7 @@ impl Controller for CurrentLoop {
                 LoopState::Disabled => 0,
                 LoopState::Running => 1,
                 LoopState::Faulted => 2,
+                LoopState::Exciting => 3,
             },
             i2t_level: self
                 .supervisor()

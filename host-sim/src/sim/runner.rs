@@ -458,5 +458,6 @@ fn describe(c: &Command) -> String {
         Command::ClearFaults => "clear_faults".into(),
         Command::SetCurrent(a) => format!("set_current to {a} A"),
         Command::Retune(_) => "retune".into(),
+        Command::Excite(_) => "excite".into(),
     }
 }

@@ -35,7 +35,7 @@ pub struct TracePoint {
     pub winding_c: f64,
     /// Latched faults (the bits of [`pi_core::FaultSet`]).
     pub fault_bits: u16,
-    /// The controller's state: 0 disabled, 1 running, 2 faulted.
+    /// The controller's state: 0 disabled, 1 running, 2 faulted, 3 exciting.
     pub state: u8,
     /// The I^2t model's heat as a fraction of its trip level (0: off).
     pub i2t_level: f64,

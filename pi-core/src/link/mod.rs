@@ -18,6 +18,7 @@
 //! | a value the validating constructor refuses | [`Reply::Refused`] naming the field |
 //! | a command while faults are latched (enable, a current) | [`Reply::Faulted`] |
 //! | a command when the queue to the interrupt is full | [`Reply::Busy`] |
+//! | an excitation while the loop is not disabled | [`Reply::NotDisabled`] |
 //! | another version (the payload's first byte) | [`Reply::WrongVersion`] |
 //! | a checked payload that is not a request | [`Reply::Malformed`] |
 //! | a bad COBS code or CRC | [`Reply::Malformed`], tag 0 |
@@ -33,14 +34,15 @@ pub mod frame;
 pub mod wire;
 
 use crate::capture::{CaptureSpec, CaptureState, Sample, Trigger};
-use crate::current_loop::{Command, LoopStatus};
+use crate::current_loop::{Command, LoopState, LoopStatus};
 use crate::error::{ConfigError, Requirement};
+use crate::excitation::{Excitation, ExcitationEnd, Waveform};
 use crate::pi::PiGains;
 use crate::setpoint::SetpointLimits;
 use frame::{FrameDecoder, FrameError, MAX_FRAME};
 pub use wire::{
     Name, Needs, Refusal, Reply, ReplyFrame, Request, RequestFrame, SampleWire, StatusWire, TriggerWire,
-    VERSION,
+    VERSION, WaveformWire,
 };
 
 /// What the handler needs of the firmware: the way to the control interrupt
@@ -227,6 +229,60 @@ pub fn handle<B: Board>(request: &Request, board: &mut B) -> Reply {
                 samples,
             }
         }
+        Request::Excite {
+            waveform,
+            duration_ticks,
+            current_limit_a,
+        } => {
+            let waveform = match waveform {
+                WaveformWire::Steps {
+                    low_v,
+                    high_v,
+                    hold_ticks,
+                } => Waveform::Steps {
+                    low_v,
+                    high_v,
+                    hold_ticks,
+                },
+                WaveformWire::Prbs {
+                    offset_v,
+                    amplitude_v,
+                    order,
+                    bit_ticks,
+                } => Waveform::Prbs {
+                    offset_v,
+                    amplitude_v,
+                    order,
+                    bit_ticks,
+                },
+                WaveformWire::Chirp {
+                    offset_v,
+                    amplitude_v,
+                    f0_hz,
+                    f1_hz,
+                } => Waveform::Chirp {
+                    offset_v,
+                    amplitude_v,
+                    f0_hz,
+                    f1_hz,
+                },
+            };
+            let excitation =
+                match Excitation::new(waveform, duration_ticks, current_limit_a, board.period_s()) {
+                    Ok(e) => e,
+                    Err(e) => return Reply::Refused(refusal(&e)),
+                };
+            let status = board.status();
+            if !status.latched.is_empty() {
+                return Reply::Faulted {
+                    latched: status.latched.bits(),
+                };
+            }
+            if status.state != LoopState::Disabled {
+                return Reply::NotDisabled;
+            }
+            queue(board, Command::Excite(excitation))
+        }
     }
 }
 
@@ -249,6 +305,13 @@ fn status_wire(s: &LoopStatus) -> StatusWire {
         commanded_v: s.commanded_v,
         duty: s.command.signed_duty(),
         heat: s.heat,
+        excitation_end: match s.excitation_end {
+            None => 0,
+            Some(ExcitationEnd::Completed) => 1,
+            Some(ExcitationEnd::CurrentLimit) => 2,
+            Some(ExcitationEnd::Fault) => 3,
+            Some(ExcitationEnd::Disabled) => 4,
+        },
     }
 }
 

@@ -381,3 +381,55 @@ fn bad_frames_get_a_reply_and_never_reach_the_loop() {
         "only the good frame reached the queue"
     );
 }
+
+#[test]
+fn an_excitation_is_checked_queued_and_captured() {
+    let (mut link, mut board) = (Link::new(), TestBoard::new());
+    let prbs = |order| Request::Excite {
+        waveform: WaveformWire::Prbs {
+            offset_v: 1.0,
+            amplitude_v: 2.0,
+            order,
+            bit_ticks: 2,
+        },
+        duration_ticks: 30,
+        current_limit_a: 3.0,
+    };
+    let Reply::Refused(r) = ask(&mut link, &mut board, 1, prbs(3)) else {
+        panic!("refused")
+    };
+    assert_eq!((r.field.as_str(), r.value), ("order", 3.0));
+    ask(&mut link, &mut board, 2, Request::Enable);
+    board.tick(2048, 24.0);
+    assert_eq!(ask(&mut link, &mut board, 3, prbs(7)), Reply::NotDisabled);
+    ask(&mut link, &mut board, 4, Request::Disable);
+    board.tick(2048, 24.0);
+    let arm = Request::ArmCapture {
+        trigger: TriggerWire::Immediate,
+        decimation: 1,
+        samples: 32,
+    };
+    assert_eq!(ask(&mut link, &mut board, 5, arm), Reply::Armed);
+    assert_eq!(ask(&mut link, &mut board, 6, prbs(7)), Reply::Queued);
+    for _ in 0..40 {
+        board.tick(2048, 24.0);
+    }
+    let Reply::Status(s) = ask(&mut link, &mut board, 7, Request::Status) else {
+        panic!("a status")
+    };
+    assert_eq!((s.state, s.excitation_end), (0, 1), "disabled, completed");
+    // The capture saw the excitation: state 3 and the PRBS's two levels
+    // (3 V and -1 V on a 24 V bus) for its 30 ticks, then disabled.
+    let samples = board.capture.samples();
+    let exciting: Vec<_> = samples
+        .iter()
+        .filter(|s| s.state == crate::LoopState::Exciting)
+        .collect();
+    assert_eq!(exciting.len(), 30);
+    assert!(
+        exciting
+            .iter()
+            .all(|s| s.commanded_v == 3.0 || s.commanded_v == -1.0)
+    );
+    assert!(exciting.iter().any(|s| s.commanded_v == -1.0));
+}

@@ -103,6 +103,55 @@ pub enum Request {
         #[serde(with = "postcard::fixint::le")]
         first: u16,
     },
+    /// Run an open-loop excitation from `Disabled` ([`Reply::Queued`]); see
+    /// [`crate::excitation`].
+    Excite {
+        /// The waveform.
+        waveform: WaveformWire,
+        /// Control ticks it lasts.
+        #[serde(with = "postcard::fixint::le")]
+        duration_ticks: u32,
+        /// The measured current that stops it, A.
+        current_limit_a: f32,
+    },
+}
+
+/// An excitation's waveform on the wire ([`crate::excitation::Waveform`]).
+#[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
+pub enum WaveformWire {
+    /// A square wave between two levels.
+    Steps {
+        /// V.
+        low_v: f32,
+        /// V.
+        high_v: f32,
+        /// Ticks at each level.
+        #[serde(with = "postcard::fixint::le")]
+        hold_ticks: u32,
+    },
+    /// A maximal-length pseudo-random binary sequence.
+    Prbs {
+        /// V.
+        offset_v: f32,
+        /// V.
+        amplitude_v: f32,
+        /// Register length, 5 to 16.
+        order: u8,
+        /// Ticks per bit.
+        #[serde(with = "postcard::fixint::le")]
+        bit_ticks: u32,
+    },
+    /// A linear frequency sweep.
+    Chirp {
+        /// V.
+        offset_v: f32,
+        /// V.
+        amplitude_v: f32,
+        /// Hz.
+        f0_hz: f32,
+        /// Hz.
+        f1_hz: f32,
+    },
 }
 
 /// A capture trigger on the wire.
@@ -201,12 +250,15 @@ pub enum Reply {
     Malformed,
     /// The frame was longer than the device's buffer.
     Oversized,
+    /// An excitation was asked while the loop is running or exciting;
+    /// disable it first.
+    NotDisabled,
 }
 
 /// The loop's state on the wire.
 #[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
 pub struct StatusWire {
-    /// 0 disabled, 1 running, 2 faulted.
+    /// 0 disabled, 1 running, 2 faulted, 3 exciting.
     pub state: u8,
     /// Latched faults ([`crate::FaultSet::bits`]).
     #[serde(with = "postcard::fixint::le")]
@@ -226,6 +278,9 @@ pub struct StatusWire {
     pub duty: f32,
     /// Normalised I^2t heat (1 = rated), 0 without a thermal model.
     pub heat: f32,
+    /// How the last excitation ended: 0 running or none yet, 1 completed,
+    /// 2 at its current limit, 3 by a fault, 4 by a disable.
+    pub excitation_end: u8,
 }
 
 /// One captured tick on the wire ([`crate::capture::Sample`]).
@@ -242,7 +297,7 @@ pub struct SampleWire {
     /// Signed duty in units of 1/32767.
     #[serde(with = "postcard::fixint::le")]
     pub duty_q15: i16,
-    /// 0 disabled, 1 running, 2 faulted.
+    /// 0 disabled, 1 running, 2 faulted, 3 exciting.
     pub state: u8,
 }
 

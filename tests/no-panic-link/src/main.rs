@@ -4,7 +4,7 @@
 //! the compiler cannot see through (`black_box`), so every branch stays in the
 //! binary: start-up (every constructor, the offset calibration, `set_sense`, a
 //! hot start through the supervisor), the main loop (commands through the
-//! handoff queue, telemetry, the on-device design of new gains), the control
+//! handoff queue (an excitation among them), telemetry, the on-device design of new gains), the control
 //! interrupt (`tick`, both HAL adapters, the capture), the bench link's
 //! handler fed opaque bytes in the main loop, and the bare PI, the supervisor, the
 //! setpoint shaper and the duty mapping on their own. The panic
@@ -21,6 +21,7 @@ use core::panic::PanicInfo;
 use embedded_hal::digital::{ErrorKind as PinErrorKind, ErrorType as PinErrorType, OutputPin};
 use embedded_hal::pwm::{ErrorKind as PwmErrorKind, ErrorType as PwmErrorType, SetDutyCycle};
 use pi_core::design::{RlPlant, Sampling, Spec, analysis::OpenLoop, discrete};
+use pi_core::excitation::{Excitation, Waveform};
 use pi_core::capture::{Capture, CaptureSpec, CaptureState, Sample};
 use pi_core::heapless::spsc::{Producer, Queue};
 use pi_core::link::{Board, Link};
@@ -323,6 +324,34 @@ pub extern "C" fn _start() -> ! {
             1 => Command::Disable,
             2 => Command::SetCurrent(black_box(1.0)),
             3 => Command::ClearFaults,
+            4 => match Excitation::new(
+                Waveform::Prbs {
+                    offset_v: black_box(0.0),
+                    amplitude_v: black_box(3.0),
+                    order: black_box(9),
+                    bit_ticks: black_box(2),
+                },
+                black_box(2000),
+                black_box(2.0),
+                black_box(50e-6),
+            ) {
+                Ok(e) => Command::Excite(e),
+                Err(_) => Command::Disable,
+            },
+            5 => match Excitation::new(
+                Waveform::Chirp {
+                    offset_v: black_box(0.0),
+                    amplitude_v: black_box(3.0),
+                    f0_hz: black_box(10.0),
+                    f1_hz: black_box(2000.0),
+                },
+                black_box(2000),
+                black_box(2.0),
+                black_box(50e-6),
+            ) {
+                Ok(e) => Command::Excite(e),
+                Err(_) => Command::Disable,
+            },
             _ => match designed {
                 Some(g) => Command::Retune(g),
                 None => Command::Disable,
