@@ -155,12 +155,14 @@ fn random_request(rng: &mut Rng) -> Request {
         7 => Request::WriteGains {
             kp_v_per_a: rng.f32(),
             ti_s: rng.f32(),
+            setpoint_weight: rng.f32(),
         },
         8 => Request::ReadLimits,
         9 => Request::ArmCapture {
-            trigger: match rng.below(3) {
+            trigger: match rng.below(4) {
                 0 => TriggerWire::Immediate,
                 1 => TriggerWire::SetpointChange,
+                2 => TriggerWire::Excitation,
                 _ => TriggerWire::Level {
                     level_a: rng.f32(),
                     rising: rng.below(2) == 0,

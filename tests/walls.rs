@@ -161,7 +161,9 @@ fn the_host_walls_hold() {
         &["cli", "scenario", "results", "plot", "tuning", "prepare", "sim"],
     );
     forbid("results", &["cli", "plot", "prepare", "tuning"]);
-    forbid("bench", &["cli", "plot", "results", "prepare"]);
+    forbid("bench", &["cli", "plot", "results", "prepare", "bringup"]);
+    // The board commands' work: no printing, no pictures.
+    forbid("bringup", &["cli", "plot"]);
     // The command line parses, calls and prints: no control math of its own.
     for f in rust_files(&root().join("host-sim/src/cli")) {
         let text = std::fs::read_to_string(&f).unwrap();

@@ -35,14 +35,19 @@
 //! * [`plot`]: SVG (step response, root locus, frequency response).
 //! * [`cli`]: the `ampwright` command, one file per command, each owning its
 //!   arguments: parse, call, print.
-//! * [`bench`](mod@bench): captures from the bench read from CSV, and the load
-//!   identified from them.
+//! * [`bench`](mod@bench): captures from the bench read from CSV, the load
+//!   identified from them, the host side of the bench link and the virtual
+//!   board (the simulator behind pi-core's own link handler).
+//! * [`bringup`]: the board commands' work over the link (identification on
+//!   the board, a step, the guided bring-up that designs, writes, verifies
+//!   and compares).
 //! * [`demo`]: the built-in invented machine and board.
 //!
 //! Model parameters that are out of range are refused with a [`ModelError`]
 //! naming the field (or the command-line option that set it).
 
 pub mod bench;
+pub mod bringup;
 pub mod cli;
 pub mod demo;
 pub mod model_error;

@@ -190,37 +190,43 @@ pub fn load(path: &Path) -> Result<Prepared, PrepareError> {
     prepare(Params::load(path)?)
 }
 
-/// Builds the scenario, designing the gains first when it leaves them out: the
-/// chosen method's gains, with the scenario's setpoint weight if it gives one
-/// and the method's otherwise.
+/// The design's chosen gains for `params` with `overrides`, and the setpoint
+/// weight they run with: the scenario's if it gives one, the method's
+/// otherwise.
+pub fn choose(params: &Params, overrides: &Overrides) -> Result<Designed, PrepareError> {
+    let report = design(params, overrides)?;
+    let (Some(m), Some(g)) = (report.chosen(), report.chosen_gains()) else {
+        return Err(PrepareError::NoDesign(Box::new(report)));
+    };
+    let from_scenario = params.controller.setpoint_weight.is_some();
+    let weight = params
+        .controller
+        .setpoint_weight
+        .unwrap_or_else(|| m.kind.setpoint_weight());
+    let predicted =
+        tuning::predict(&report.survey.basis, &g, weight).map_err(|e| PrepareError::Scenario(e.into()))?;
+    Ok(Designed {
+        method: m.method,
+        kp_v_per_a: g.kp_v_per_a,
+        ti_s: g.ti_s,
+        setpoint_weight: weight,
+        weight_from_scenario: from_scenario,
+        predicted,
+    })
+}
+
+/// Builds the scenario, designing the gains first when it leaves them out
+/// ([`choose`]).
 pub fn prepare(mut params: Params) -> Result<Prepared, PrepareError> {
     let mut designed = None;
     if params.controller.gains.is_none() {
-        let report = design(&params, &Overrides::default())?;
-        let (Some(m), Some(g)) = (report.chosen(), report.chosen_gains()) else {
-            return Err(PrepareError::NoDesign(Box::new(report)));
-        };
-        let method = m.kind;
-        let from_scenario = params.controller.setpoint_weight.is_some();
-        let weight = params
-            .controller
-            .setpoint_weight
-            .unwrap_or_else(|| method.setpoint_weight());
-        let predicted = tuning::predict(&report.survey.basis, &g, weight)
-            .map_err(|e| PrepareError::Scenario(e.into()))?;
+        let d = choose(&params, &Overrides::default())?;
         params.controller.gains = Some(GainParams {
-            kp_v_per_a: g.kp_v_per_a,
-            ti_s: g.ti_s,
+            kp_v_per_a: d.kp_v_per_a,
+            ti_s: d.ti_s,
         });
-        params.controller.setpoint_weight = Some(weight);
-        designed = Some(Designed {
-            method: m.method,
-            kp_v_per_a: g.kp_v_per_a,
-            ti_s: g.ti_s,
-            setpoint_weight: weight,
-            weight_from_scenario: from_scenario,
-            predicted,
-        });
+        params.controller.setpoint_weight = Some(d.setpoint_weight);
+        designed = Some(d);
     }
     let scenario = params.build()?;
     Ok(Prepared {

@@ -14,6 +14,10 @@
 //! * [`Trigger::Immediate`]: the first tick after arming.
 //! * [`Trigger::SetpointChange`]: the first tick whose target current differs
 //!   from the target when the capture was armed (a step request).
+//! * [`Trigger::Excitation`]: the first tick of an open-loop excitation
+//!   ([`crate::excitation`]): the samples then start with the waveform, and a
+//!   hold that is a multiple of the decimation puts every level change on a
+//!   kept sample.
 //! * [`Trigger::Level`]: the first tick whose measured current crosses a level
 //!   in the stated direction.
 //!
@@ -107,6 +111,8 @@ pub enum Trigger {
         /// The direction of the crossing.
         rising: bool,
     },
+    /// The first tick of an excitation (the loop in its `Exciting` state).
+    Excitation,
 }
 
 /// How to record: validated by [`CaptureSpec::new`].
@@ -285,6 +291,7 @@ impl<const N: usize> Capture<N> {
         let fire = match self.spec.trigger {
             Trigger::Immediate => true,
             Trigger::SetpointChange => cl.target_a() != self.armed_target_a,
+            Trigger::Excitation => cl.state() == LoopState::Exciting,
             Trigger::Level { level_a, rising } => {
                 if rising {
                     self.last_current_a < level_a && current_a >= level_a

@@ -5,10 +5,16 @@
 //! ([`rotor_current`]), both refined by the one Levenberg-Marquardt fit
 //! ([`refine`]). No control math here beyond pi-core's least-squares
 //! identification and the fits' quality figures.
+//!
+//! The bench link: [`link`] the host side (requests, replies, a board's
+//! capture as CSV), [`virtual_board`] a board made of the simulator with the
+//! real pi-core handler, capture and loop.
 
 pub mod capture;
 pub mod identify;
 pub mod levels;
+pub mod link;
 pub mod refine;
 pub mod rotor;
 pub mod rotor_current;
+pub mod virtual_board;

@@ -3,22 +3,27 @@
 //!
 //! Exit codes: 0 done (and the spec, if any, met); 1 the spec is missed (a run
 //! finished but a step missed a limit, or no design method meets the spec
-//! strictly), or a comparison beyond its tolerance; 2 bad input (arguments, scenario, a scenario without gains whose
+//! strictly), or a comparison beyond its tolerance, or a bring-up whose board
+//! misses the spec or the simulation; 2 bad input (arguments, scenario, a scenario without gains whose
 //! spec no design meets) or an output that could not be written.
 
+pub mod board;
 pub mod columns;
 pub mod compare;
 pub mod design;
 pub mod identify;
 pub mod progress;
 pub mod simulate;
+pub mod virtual_board;
 
 use std::ffi::OsString;
 
+pub use board::BoardArgs;
 pub use compare::CompareArgs;
 pub use design::DesignArgs;
 pub use identify::IdentifyArgs;
 pub use simulate::SimulateArgs;
+pub use virtual_board::VirtualBoardArgs;
 
 use clap::{Parser, Subcommand};
 
@@ -51,6 +56,14 @@ pub enum CommandArgs {
     /// the way the board was: the steps side by side, the normalised error,
     /// the differences in words, and a picture of the two.
     Compare(CompareArgs),
+    /// Talk to a board over its bench link (pi-core's `link` feature): its
+    /// status, gains, captures, a step, an identification, and the guided
+    /// bring-up from identification to verified gains.
+    Board(BoardArgs),
+    /// Serve a scenario as a board on a pseudo-terminal: the real pi-core
+    /// link handler, capture and loop on the simulated drive chain, for
+    /// `ampwright board` without hardware.
+    VirtualBoard(VirtualBoardArgs),
 }
 
 /// A file name from a scenario name: letters, digits, `-` and `_` kept.
@@ -111,5 +124,7 @@ pub fn main(args: impl IntoIterator<Item = OsString>) -> i32 {
         CommandArgs::Design(a) => design::run(&a),
         CommandArgs::Identify(a) => identify::run(&a),
         CommandArgs::Compare(a) => compare::run(&a),
+        CommandArgs::Board(a) => board::run(&a),
+        CommandArgs::VirtualBoard(a) => virtual_board::run(&a),
     }
 }

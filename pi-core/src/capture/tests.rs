@@ -185,3 +185,30 @@ fn a_fault_shows_in_the_record() {
     assert_eq!(states, [Running, Running, Faulted, Faulted, Faulted]);
     assert_eq!(cap.samples()[4].signed_duty(), 0.0, "the safe output has no duty");
 }
+
+#[test]
+fn an_excitation_starts_it_on_its_first_tick() {
+    use crate::excitation::{Excitation, Waveform};
+    let mut cl = running_loop();
+    cl.apply(Command::Disable).unwrap();
+    let mut cap: Capture<64> = Capture::new();
+    cap.arm(CaptureSpec::new(Trigger::Excitation, 2, 8, 64).unwrap(), 0.0, 0.0)
+        .unwrap();
+    run(&mut cl, &mut cap, 10, |_| 2048);
+    assert_eq!(cap.state(), CaptureState::Armed, "nothing before the excitation");
+    let steps = Waveform::Steps {
+        low_v: 1.0,
+        high_v: 3.0,
+        hold_ticks: 4,
+    };
+    cl.apply(Command::Excite(Excitation::new(steps, 100, 3.0, 50e-6).unwrap()))
+        .unwrap();
+    run(&mut cl, &mut cap, 16, |_| 2048);
+    let s = cap.samples();
+    assert_eq!(s.len(), 8);
+    // Every second tick from the first: each level change (every 4 ticks)
+    // falls on a kept sample.
+    let volts: std::vec::Vec<f32> = s.iter().map(|x| x.commanded_v).collect();
+    assert_eq!(volts, [1.0, 1.0, 3.0, 3.0, 1.0, 1.0, 3.0, 3.0]);
+    assert!(s.iter().all(|x| x.state == LoopState::Exciting));
+}

@@ -164,11 +164,15 @@ pub fn handle<B: Board>(request: &Request, board: &mut B) -> Reply {
             Reply::Gains {
                 kp_v_per_a: g.kp_v_per_a(),
                 ti_s: g.ti_s(),
+                setpoint_weight: g.setpoint_weight(),
             }
         }
-        Request::WriteGains { kp_v_per_a, ti_s } => match PiGains::from_kp_ti(kp_v_per_a, ti_s) {
-            // The weight in use stays (it belongs to the design method).
-            Ok(g) => match g.with_setpoint_weight(board.gains().setpoint_weight()) {
+        Request::WriteGains {
+            kp_v_per_a,
+            ti_s,
+            setpoint_weight,
+        } => match PiGains::from_kp_ti(kp_v_per_a, ti_s) {
+            Ok(g) => match g.with_setpoint_weight(setpoint_weight) {
                 Ok(g) => queue(board, Command::Retune(g)),
                 Err(e) => Reply::Refused(refusal(&e)),
             },
@@ -191,6 +195,7 @@ pub fn handle<B: Board>(request: &Request, board: &mut B) -> Reply {
                 TriggerWire::Immediate => Trigger::Immediate,
                 TriggerWire::SetpointChange => Trigger::SetpointChange,
                 TriggerWire::Level { level_a, rising } => Trigger::Level { level_a, rising },
+                TriggerWire::Excitation => Trigger::Excitation,
             };
             let capacity = board.capture_capacity();
             match CaptureSpec::new(trigger, decimation, samples, capacity).and_then(|s| board.arm_capture(s))

@@ -209,16 +209,22 @@ fn requests_get_their_answers() {
             6,
             Request::WriteGains {
                 kp_v_per_a: 2.0,
-                ti_s: 1e-3
+                ti_s: 1e-3,
+                setpoint_weight: 0.5
             }
         ),
         Reply::Queued
     );
     board.tick(2048, 24.0);
-    let Reply::Gains { kp_v_per_a, ti_s } = ask(&mut link, &mut board, 7, Request::ReadGains) else {
+    let Reply::Gains {
+        kp_v_per_a,
+        ti_s,
+        setpoint_weight,
+    } = ask(&mut link, &mut board, 7, Request::ReadGains)
+    else {
         panic!("gains")
     };
-    assert_eq!(kp_v_per_a, 2.0);
+    assert_eq!((kp_v_per_a, setpoint_weight), (2.0, 0.5));
     assert!((ti_s - 1e-3).abs() < 1e-9);
 }
 
@@ -228,6 +234,7 @@ fn refused_values_name_their_field_and_change_nothing() {
     let bad = Request::WriteGains {
         kp_v_per_a: -1.0,
         ti_s: 1e-3,
+        setpoint_weight: 1.0,
     };
     let Reply::Refused(r) = ask(&mut link, &mut board, 9, bad) else {
         panic!("refused")
@@ -235,6 +242,18 @@ fn refused_values_name_their_field_and_change_nothing() {
     assert_eq!(
         (r.field.as_str(), r.value, r.needs),
         ("kp_v_per_a", -1.0, Needs::Positive)
+    );
+    let heavy = Request::WriteGains {
+        kp_v_per_a: 1.0,
+        ti_s: 1e-3,
+        setpoint_weight: 1.5,
+    };
+    let Reply::Refused(r) = ask(&mut link, &mut board, 9, heavy) else {
+        panic!("refused")
+    };
+    assert_eq!(
+        (r.field.as_str(), r.needs),
+        ("setpoint_weight", Needs::Within { min: 0.0, max: 1.0 })
     );
     assert!(board.queue.is_empty());
     let arm = Request::ArmCapture {

@@ -81,6 +81,9 @@ pub enum Request {
         kp_v_per_a: f32,
         /// Integral time, s.
         ti_s: f32,
+        /// Share of the setpoint in the proportional term, 0 to 1 (the
+        /// design method's; 1 is a plain PI).
+        setpoint_weight: f32,
     },
     /// The setpoint limits in use ([`Reply::Limits`]).
     ReadLimits,
@@ -168,6 +171,8 @@ pub enum TriggerWire {
         /// Upward (`true`) or downward.
         rising: bool,
     },
+    /// When an excitation starts.
+    Excitation,
 }
 
 /// What the device answers.
@@ -195,6 +200,8 @@ pub enum Reply {
         kp_v_per_a: f32,
         /// s.
         ti_s: f32,
+        /// Setpoint weight, 0 to 1.
+        setpoint_weight: f32,
     },
     /// The setpoint limits in use.
     Limits {

@@ -124,6 +124,18 @@ impl BridgeParams {
             decay: Decay::Slow,
         }
     }
+
+    /// The resistance the switches put in series with the load while the
+    /// bridge drives it, ohm: two MOSFETs' on-resistance (a high side and
+    /// the other leg's low side; in slow decay the two low sides), 0 for
+    /// bipolar switches, whose drop is a voltage. A bench measurement of R
+    /// through the bridge reads the winding plus this.
+    pub fn series_resistance_ohm(&self) -> f64 {
+        match self.switch {
+            SwitchDrop::OnResistance(r) => 2.0 * r,
+            SwitchDrop::Fixed(_) => 0.0,
+        }
+    }
 }
 
 /// The state of the bridge during one interval of a PWM period.

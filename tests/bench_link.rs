@@ -1,0 +1,86 @@
+//! The bench link end to end: the host side talking to the virtual board (the
+//! real pi-core handler, capture and loop on the simulated drive chain of an
+//! invented gearmotor sample with its shaft clamped), in process and through
+//! a pseudo-terminal.
+
+use std::path::PathBuf;
+use std::time::Duration;
+
+use host_sim::bench::link::BoardLink;
+use host_sim::bench::virtual_board::{VirtualBoard, VirtualPort};
+use host_sim::bringup::{BringUpOptions, Rotor, bring_up};
+use host_sim::scenario::Params;
+
+fn scenario(name: &str) -> PathBuf {
+    PathBuf::from(env!("CARGO_MANIFEST_DIR"))
+        .join("../host-sim/scenarios")
+        .join(name)
+}
+
+fn board() -> VirtualPort {
+    let prepared = host_sim::prepare::load(&scenario("carousel_bench.toml")).unwrap();
+    VirtualPort::new(VirtualBoard::new(&prepared.scenario, 2e-3).unwrap())
+}
+
+#[test]
+fn the_bring_up_finds_the_sample_and_its_gains_meet_the_spec() {
+    let mut link = BoardLink::new(board(), Duration::from_secs(1));
+    link.poll = Duration::ZERO;
+    let params = Params::load(&scenario("carousel_step.toml")).unwrap();
+    let options = BringUpOptions {
+        rotor: Rotor::Held,
+        test_current_a: None,
+        step_a: None,
+        max_error_pct: 10.0,
+    };
+    let b = bring_up(&mut link, &params, &options, &mut |s| eprintln!("{s}")).unwrap();
+    let (r, l) = b.winding;
+    eprintln!("R {r} L {l} checks {:?} nrmse {}", b.checks, b.comparison.nrmse);
+    assert!((r / 2.05 - 1.0).abs() < 0.03, "R = {r}");
+    assert!((l / 2.2e-3 - 1.0).abs() < 0.03, "L = {l}");
+    assert!(b.passed());
+}
+
+/// The same link through a pseudo-terminal, as `ampwright virtual-board`
+/// serves it: the board in a thread on the master side, the host on the
+/// path of the other side, opened as a serial port.
+#[cfg(unix)]
+#[test]
+fn the_link_runs_through_a_pseudo_terminal() {
+    use serialport::SerialPort;
+    use std::sync::Arc;
+    use std::sync::atomic::{AtomicBool, Ordering};
+
+    let (mut master, slave) = serialport::TTYPort::pair().unwrap();
+    master.set_timeout(Duration::from_millis(5)).unwrap();
+    let path = slave.name().unwrap();
+    let done = Arc::new(AtomicBool::new(false));
+    let stop = done.clone();
+    let mut vb = board().board;
+    let server = std::thread::spawn(move || {
+        vb.serve(&mut master, |_| !stop.load(Ordering::Relaxed)).unwrap();
+        drop(slave);
+        vb.requests()
+    });
+    let port = serialport::new(&path, 115_200)
+        .timeout(Duration::from_millis(5))
+        .open_native()
+        .unwrap();
+    let mut link = BoardLink::new(port, Duration::from_secs(2));
+    let hello = link.hello().unwrap();
+    assert_eq!(hello.capture_capacity, 2048);
+    assert!((hello.period_s - 50e-6).abs() < 1e-9);
+    let s = link.status().unwrap();
+    assert_eq!((s.state, s.latched), (0, 0));
+    // A refusal comes back over the line naming the field.
+    let e = link
+        .command(pi_core::link::Request::WriteGains {
+            kp_v_per_a: 2.0,
+            ti_s: -1.0,
+            setpoint_weight: 1.0,
+        })
+        .unwrap_err();
+    assert!(e.0.contains("ti_s = -1 must be a value above 0"), "{e}");
+    done.store(true, Ordering::Relaxed);
+    assert_eq!(server.join().unwrap(), 3);
+}
