@@ -39,6 +39,21 @@ fn the_bring_up_finds_the_sample_and_its_gains_meet_the_spec() {
     assert!((r / 2.05 - 1.0).abs() < 0.03, "R = {r}");
     assert!((l / 2.2e-3 - 1.0).abs() < 0.03, "L = {l}");
     assert!(b.passed());
+    // The board's own f32 least squares on the same samples and delay is
+    // the host's linear stage (pi-core's identify in f64) to within 1 %.
+    let on_board = b.identified.on_board.as_ref().unwrap();
+    let rl = &b.identified.rl;
+    assert!(
+        (on_board.resistance_ohm / rl.linear_resistance_ohm - 1.0).abs() < 0.01,
+        "{on_board:?} against {}",
+        rl.linear_resistance_ohm
+    );
+    assert!((on_board.inductance_h / rl.linear_inductance_h - 1.0).abs() < 0.01);
+    // Its f32 design with the host's method, winding and spec: the host's
+    // gains to f32's digits.
+    let g = b.on_board_gains.as_ref().unwrap();
+    assert!((g.kp_v_per_a / b.designed.kp_v_per_a - 1.0).abs() < 1e-4, "{g:?}");
+    assert!((g.ti_s / b.designed.ti_s - 1.0).abs() < 1e-4);
 }
 
 /// The same link through a pseudo-terminal, as `ampwright virtual-board`

@@ -24,7 +24,10 @@ use pi_core::link::{Request, TriggerWire, WaveformWire};
 
 use crate::bench::capture::{self, Capture, Columns};
 use crate::bench::identify::{Estimate, RlFit, identify_rl};
-use crate::bench::link::{BoardCapture, BoardLink, Hello, LinkError, capture_csv, fault_names, state_name};
+use crate::bench::link::{
+    BoardCapture, BoardEstimate, BoardGains, BoardLink, DesignAsk, LinkError, capture_csv, fault_names,
+    state_name,
+};
 use crate::bench::rotor_current::{RotorFromCurrent, identify_from_current};
 use crate::prepare::{self, Overrides};
 use crate::results::compare::{Comparison, compare};
@@ -32,172 +35,13 @@ use crate::results::metrics::{Check, verdict};
 use crate::results::report::Designed;
 use crate::scenario::Params;
 
-/// The low level of the identification's square wave as a share of the
-/// high one. Above zero, the current never reaches zero, so the voltage a
-/// bridge loses in its dead time and diodes keeps one sign and one size
-/// through the test, and the fit takes it up as a constant offset instead of
-/// reading it as resistance (common practice on the bench: keep the test
-/// current one-signed and off zero).
-pub const LOW_SHARE: f64 = 0.25;
-
+mod plan;
 mod report;
+
+pub use plan::{IdentifyPlan, LOW_SHARE, Rotor, StepPlan};
 
 fn stop(s: impl Into<String>) -> LinkError {
     LinkError(s.into())
-}
-
-/// How the shaft is during an identification.
-#[derive(Clone, Copy, Debug, PartialEq)]
-pub enum Rotor {
-    /// Clamped: R and L alone.
-    Held,
-    /// Free to turn, with this inertia (rotor and load), kg m^2: Ke from the
-    /// current as well.
-    Free {
-        /// kg m^2.
-        inertia_kg_m2: f64,
-    },
-}
-
-/// An identification run on the board.
-#[derive(Clone, Copy, Debug, PartialEq)]
-pub struct IdentifyPlan {
-    /// The shaft.
-    pub rotor: Rotor,
-    /// The current the high level drives through the nominal resistance, A.
-    pub test_current_a: f64,
-    /// The high level, V (the low level is [`LOW_SHARE`] of it).
-    pub volts: f64,
-    /// Ticks at each level.
-    pub hold_ticks: u32,
-    /// Ticks it lasts.
-    pub duration_ticks: u32,
-    /// The measured current at which the board stops it, A.
-    pub current_limit_a: f64,
-    /// One tick kept in this many.
-    pub decimation: u16,
-    /// Samples kept.
-    pub samples: u16,
-    /// The board's control period, s.
-    pub period_s: f64,
-}
-
-impl IdentifyPlan {
-    /// The plan for a load of nominally `resistance_ohm` and `inductance_h`
-    /// (the scenario's values: the identification finds the true ones) on a
-    /// board that allows currents up to `max_a`.
-    pub fn new(
-        resistance_ohm: f64,
-        inductance_h: f64,
-        hello: &Hello,
-        max_a: f64,
-        test_current_a: Option<f64>,
-        rotor: Rotor,
-    ) -> Result<Self, LinkError> {
-        let test = test_current_a.unwrap_or(0.5 * max_a);
-        if !(test.is_finite() && test > 0.0 && test <= max_a) {
-            return Err(stop(format!(
-                "--test-current-a = {test} must be above 0 A and at most the board's limit of {max_a} A"
-            )));
-        }
-        let t = hello.period_s;
-        let tau = inductance_h / resistance_ohm;
-        // Six time constants at each level, eight levels; one tick kept in
-        // as few as lets that fit the capture, and each hold a whole number
-        // of kept samples (the capture starts with the excitation, so every
-        // level change falls on a kept sample).
-        let hold = (6.0 * tau / t).round().max(8.0);
-        let decimation = (8.0 * hold / hello.capture_capacity as f64)
-            .ceil()
-            .clamp(1.0, 1000.0) as u16;
-        let d = decimation as u32;
-        let hold_ticks = (hold as u32).div_ceil(d) * d;
-        let samples = ((8 * hold_ticks) / d).clamp(64, hello.capture_capacity as u32) as u16;
-        Ok(Self {
-            rotor,
-            test_current_a: test,
-            volts: test * resistance_ohm,
-            hold_ticks,
-            duration_ticks: samples as u32 * decimation as u32,
-            current_limit_a: (1.5 * test).min(max_a.max(test)),
-            decimation,
-            samples,
-            period_s: t,
-        })
-    }
-
-    /// What will happen, for the operator to read before it does.
-    pub fn describe(&self) -> String {
-        format!(
-            "identification: the loop stays off; the board applies {:.3} V and {:.3} V in turn ({:.2} ms each, open loop, \
-             {:.1} ms in all) to the load with its {}; the board stops at {:.3} A measured, and its supervisor stays on",
-            LOW_SHARE * self.volts,
-            self.volts,
-            self.hold_ticks as f64 * self.period_s * 1e3,
-            self.duration_ticks as f64 * self.period_s * 1e3,
-            match self.rotor {
-                Rotor::Held => "rotor held (clamp the shaft)".to_string(),
-                Rotor::Free { .. } => "shaft free to turn".to_string(),
-            },
-            self.current_limit_a
-        )
-    }
-}
-
-/// A verification step on the board.
-#[derive(Clone, Copy, Debug, PartialEq)]
-pub struct StepPlan {
-    /// The current before the step, A.
-    pub from_a: f64,
-    /// After, A.
-    pub to_a: f64,
-    /// One tick kept in this many.
-    pub decimation: u16,
-    /// Samples kept.
-    pub samples: u16,
-    /// The board's control period, s.
-    pub period_s: f64,
-}
-
-impl StepPlan {
-    /// A step from `from_a` to `to_a` whose capture lasts at least
-    /// `window_s` (the decimation follows from the capture's capacity).
-    pub fn new(from_a: f64, to_a: f64, window_s: f64, hello: &Hello) -> Result<Self, LinkError> {
-        for (flag, v) in [("--from-a", from_a), ("--to-a", to_a)] {
-            if !v.is_finite() {
-                return Err(stop(format!("{flag} = {v} must be a current in amperes")));
-            }
-        }
-        if !(window_s.is_finite() && window_s > 0.0 && window_s <= 60.0) {
-            return Err(stop(format!(
-                "--window-s = {window_s} must be above 0 s and at most 60 s"
-            )));
-        }
-        let t = hello.period_s;
-        let ticks = (window_s / t).ceil();
-        let decimation = (ticks / hello.capture_capacity as f64)
-            .ceil()
-            .clamp(1.0, u16::MAX as f64) as u16;
-        let samples = ((ticks / decimation as f64).ceil() as usize).clamp(16, hello.capture_capacity) as u16;
-        Ok(Self {
-            from_a,
-            to_a,
-            decimation,
-            samples,
-            period_s: t,
-        })
-    }
-
-    /// What will happen.
-    pub fn describe(&self) -> String {
-        format!(
-            "step: the loop is enabled at {} A, asked for {} A while {:.1} ms are captured, then set back to {} A and disabled",
-            self.from_a,
-            self.to_a,
-            self.samples as f64 * self.decimation as f64 * self.period_s * 1e3,
-            self.from_a
-        )
-    }
 }
 
 /// What an identification found.
@@ -211,6 +55,9 @@ pub struct Identified {
     pub rl: RlFit,
     /// With the shaft free: the fit from the current, inertia given.
     pub rotor: Option<RotorFromCurrent>,
+    /// The board's own f32 least squares on the same capture, at the host
+    /// fit's delay (or why it gave none).
+    pub on_board: Result<BoardEstimate, String>,
 }
 
 impl Identified {
@@ -302,11 +149,14 @@ pub fn identify<P: Read + Write>(
         Rotor::Held => None,
         Rotor::Free { inertia_kg_m2 } => identify_from_current(&capture, &rl, inertia_kg_m2),
     };
+    let delay = rl.delay_samples.min(pi_core::link::MAX_DELAY_SAMPLES) as u8;
+    let on_board = link.identify_on_board(delay).map_err(|e| e.0);
     Ok(Identified {
         csv,
         capture,
         rl,
         rotor,
+        on_board,
     })
 }
 
@@ -375,6 +225,9 @@ pub struct BringUp {
     pub winding: (f64, f64),
     /// The gains designed from the identified load and written.
     pub designed: Designed,
+    /// The board's own f32 design with the same method, winding and spec
+    /// (or why it gave none).
+    pub on_board_gains: Result<BoardGains, String>,
     /// The verification step run.
     pub step_plan: StepPlan,
     /// Its capture (CSV).
@@ -454,6 +307,7 @@ pub fn bring_up<P: Read + Write>(
         ti_s: designed.ti_s,
     });
     ident.controller.setpoint_weight = Some(designed.setpoint_weight);
+    let on_board_gains = board_design(link, &ident, &designed);
     note(&format!(
         "writing Kp = {:.5} V/A, Ti = {:.5} ms, setpoint weight {} ({} design)",
         designed.kp_v_per_a,
@@ -484,6 +338,7 @@ pub fn bring_up<P: Read + Write>(
         nominal,
         winding: (r, l),
         designed,
+        on_board_gains,
         step_plan,
         step_csv,
         checks,
@@ -491,4 +346,33 @@ pub fn bring_up<P: Read + Write>(
         params: ident,
         max_error_pct: options.max_error_pct,
     })
+}
+
+/// The same design asked of the board: its f32 code, the host's method,
+/// winding, spec and delay (the board's plant is a held R-L without filter).
+fn board_design<P: Read + Write>(
+    link: &mut BoardLink<P>,
+    ident: &Params,
+    designed: &Designed,
+) -> Result<BoardGains, String> {
+    use pi_core::design::Method;
+    use pi_core::link::MethodWire;
+    let method = match Method::ALL.iter().find(|m| m.name() == designed.method) {
+        Some(Method::DirectDiscrete) => MethodWire::DirectDiscrete,
+        Some(Method::RootLocus) => MethodWire::RootLocus,
+        Some(Method::ModulusOptimum) => MethodWire::ModulusOptimum,
+        Some(Method::Cancellation) => MethodWire::Cancellation,
+        None => return Err(format!("the board has no {} method", designed.method)),
+    };
+    let basis = prepare::basis(ident, &Overrides::default()).map_err(|e| e.to_string())?;
+    link.design(&DesignAsk {
+        method,
+        resistance_ohm: basis.resistance_ohm,
+        inductance_h: basis.inductance_h,
+        settling_time_s: basis.settling_time_s,
+        overshoot_pct: basis.overshoot * 100.0,
+        rise_time_s: basis.rise_time_s,
+        delay_periods: basis.delay_periods,
+    })
+    .map_err(|e| e.0)
 }

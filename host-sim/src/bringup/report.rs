@@ -62,6 +62,15 @@ impl BringUp {
         for w in &id.rl.warnings {
             t.push_str(&format!("  warning: {w}\n"));
         }
+        match &id.on_board {
+            Ok(b) => t.push_str(&format!(
+                "  the board's own least squares (f32, {} samples): {:.4} ohm through the bridge, {:.4} mH\n",
+                b.samples,
+                b.resistance_ohm,
+                b.inductance_h * 1e3
+            )),
+            Err(e) => t.push_str(&format!("  the board's own least squares: none ({e})\n")),
+        }
         let d = &self.designed;
         t.push_str(&format!(
             "\ndesigned from the scenario's spec on the identified winding: {} method\n  Kp = {:.5} V/A, Ti = {:.5} ms, setpoint weight {}; predicted {:.2} % overshoot, settling {}\n",
@@ -74,6 +83,14 @@ impl BringUp {
                 .settling_time_s
                 .map_or("not within the prediction".to_string(), |s| format!("{:.3} ms", s * 1e3)),
         ));
+        match &self.on_board_gains {
+            Ok(g) => t.push_str(&format!(
+                "  the board's own design (f32, same method and spec): Kp = {:.5} V/A, Ti = {:.5} ms\n",
+                g.kp_v_per_a,
+                g.ti_s * 1e3
+            )),
+            Err(e) => t.push_str(&format!("  the board's own design: none ({e})\n")),
+        }
         t.push_str(&format!(
             "\nverification step on the board, {} A to {} A, against the spec\n",
             self.step_plan.from_a, self.step_plan.to_a
@@ -154,6 +171,11 @@ impl BringUp {
                 "inductance_h": e(&id.inductance_h()),
                 "back_emf_v_s_per_rad": id.rotor.as_ref().map(|f| e(&f.back_emf_v_s_per_rad)),
                 "nrmse": id.rl.nrmse,
+                "on_board": id.on_board.as_ref().ok().map(|b| serde_json::json!({
+                    "circuit_resistance_ohm": b.resistance_ohm,
+                    "inductance_h": b.inductance_h,
+                    "samples": b.samples,
+                })),
             },
             "scenario": {"resistance_ohm": self.nominal.0, "inductance_h": self.nominal.1},
             "gains": {
@@ -161,6 +183,10 @@ impl BringUp {
                 "kp_v_per_a": self.designed.kp_v_per_a,
                 "ti_s": self.designed.ti_s,
                 "setpoint_weight": self.designed.setpoint_weight,
+                "on_board": self.on_board_gains.as_ref().ok().map(|g| serde_json::json!({
+                    "kp_v_per_a": g.kp_v_per_a,
+                    "ti_s": g.ti_s,
+                })),
             },
             "step": {"from_a": self.step_plan.from_a, "to_a": self.step_plan.to_a},
             "checks": self.checks,

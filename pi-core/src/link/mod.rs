@@ -19,6 +19,8 @@
 //! | a command while faults are latched (enable, a current) | [`Reply::Faulted`] |
 //! | a command when the queue to the interrupt is full | [`Reply::Busy`] |
 //! | an excitation while the loop is not disabled | [`Reply::NotDisabled`] |
+//! | a design the design code refuses, or whose loop is unstable | [`Reply::DesignRefused`] with the reason |
+//! | an identification the samples do not support | [`Reply::NotIdentified`] with the reason |
 //! | another version (the payload's first byte) | [`Reply::WrongVersion`] |
 //! | a checked payload that is not a request | [`Reply::Malformed`] |
 //! | a bad COBS code or CRC | [`Reply::Malformed`], tag 0 |
@@ -30,8 +32,11 @@
 //! covers it, and a property test feeds it a million random and mutated
 //! frames).
 
+mod device;
 pub mod frame;
 pub mod wire;
+
+pub use device::MAX_DELAY_SAMPLES;
 
 use crate::capture::{CaptureSpec, CaptureState, Sample, Trigger};
 use crate::current_loop::{Command, LoopState, LoopStatus};
@@ -41,8 +46,8 @@ use crate::pi::PiGains;
 use crate::setpoint::SetpointLimits;
 use frame::{FrameDecoder, FrameError, MAX_FRAME};
 pub use wire::{
-    Name, Needs, Refusal, Reply, ReplyFrame, Request, RequestFrame, SampleWire, StatusWire, TriggerWire,
-    VERSION, WaveformWire,
+    DesignReason, IdentifyReason, MethodWire, Name, Needs, Refusal, Reply, ReplyFrame, Request, RequestFrame,
+    SampleWire, StatusWire, TriggerWire, VERSION, WaveformWire,
 };
 
 /// What the handler needs of the firmware: the way to the control interrupt
@@ -288,6 +293,27 @@ pub fn handle<B: Board>(request: &Request, board: &mut B) -> Reply {
             }
             queue(board, Command::Excite(excitation))
         }
+        Request::Design {
+            method,
+            resistance_ohm,
+            inductance_h,
+            settling_time_s,
+            overshoot_pct,
+            rise_time_s,
+            delay_periods,
+        } => device::design(
+            &device::DesignAsk {
+                method,
+                resistance_ohm,
+                inductance_h,
+                settling_time_s,
+                overshoot_pct,
+                rise_time_s,
+                delay_periods,
+            },
+            board,
+        ),
+        Request::IdentifyCapture { delay_samples } => device::identify(delay_samples, board),
     }
 }
 

@@ -452,3 +452,138 @@ fn an_excitation_is_checked_queued_and_captured() {
     );
     assert!(exciting.iter().any(|s| s.commanded_v == -1.0));
 }
+
+#[test]
+fn the_device_designs_the_cancellation_gains_of_the_textbook() {
+    let (mut link, mut board) = (Link::new(), TestBoard::new());
+    let design = Request::Design {
+        method: MethodWire::Cancellation,
+        resistance_ohm: 1.9,
+        inductance_h: 2.4e-3,
+        settling_time_s: 2e-3,
+        overshoot_pct: 5.0,
+        rise_time_s: 0.0,
+        delay_periods: 1.0,
+    };
+    let Reply::Designed {
+        kp_v_per_a,
+        ti_s,
+        setpoint_weight,
+    } = ask(&mut link, &mut board, 20, design)
+    else {
+        panic!("designed")
+    };
+    // Pole-zero cancellation (common practice): Ti = L / R puts the PI zero
+    // on the winding's pole, leaving the first-order loop wc / (s + wc), which
+    // settles to 2 % in ln(50) / wc; Kp = wc L.
+    let wc = 50f32.ln() / 2e-3;
+    assert!((kp_v_per_a / (wc * 2.4e-3) - 1.0).abs() < 1e-5, "{kp_v_per_a}");
+    assert!((ti_s / (2.4e-3 / 1.9) - 1.0).abs() < 1e-5, "{ti_s}");
+    assert_eq!(setpoint_weight, 1.0);
+    assert!(board.queue.is_empty(), "nothing applied");
+}
+
+#[test]
+fn the_device_refuses_a_design_by_its_reason() {
+    let (mut link, mut board) = (Link::new(), TestBoard::new());
+    let design = |r: f32, ts: f32| Request::Design {
+        method: MethodWire::DirectDiscrete,
+        resistance_ohm: r,
+        inductance_h: 2.4e-3,
+        settling_time_s: ts,
+        overshoot_pct: 5.0,
+        rise_time_s: 0.0,
+        delay_periods: 1.0,
+    };
+    let Reply::DesignRefused {
+        reason, field, value, ..
+    } = ask(&mut link, &mut board, 20, design(-1.0, 2e-3))
+    else {
+        panic!("refused")
+    };
+    assert_eq!(
+        (reason, field.as_str(), value),
+        (DesignReason::NotPositive, "resistance_ohm", -1.0)
+    );
+    // Settling in two periods: too fast for a 50 us loop with a period's delay.
+    let Reply::DesignRefused { reason, nearest, .. } = ask(&mut link, &mut board, 20, design(1.9, 100e-6))
+    else {
+        panic!("refused")
+    };
+    assert!(
+        matches!(reason, DesignReason::UnstableRemainder | DesignReason::Unstable),
+        "{reason:?}"
+    );
+    assert!(reason == DesignReason::Unstable || nearest > 100e-6, "{nearest}");
+}
+
+#[test]
+fn the_device_identifies_its_winding_from_the_capture() {
+    use crate::excitation::{Excitation, Waveform};
+    // An invented winding, 2 ohm and 0.5 mH, stepped between 1 V and 4 V
+    // every 8 ticks on a 24 V bus; the exact zero-order-hold response (the
+    // duty a tick returns drives until the next tick), read by the 12-bit
+    // sense (4.03 mA a count).
+    let (r, l, ts) = (2.0f64, 0.5e-3f64, 50e-6f64);
+    let (a, b) = ((-r * ts / l).exp(), (1.0 - (-r * ts / l).exp()) / r);
+    let (mut link, mut board) = (Link::new(), TestBoard::new());
+    let arm = Request::ArmCapture {
+        trigger: TriggerWire::Excitation,
+        decimation: 1,
+        samples: 32,
+    };
+    assert_eq!(ask(&mut link, &mut board, 20, arm), Reply::Armed);
+    let steps = Waveform::Steps {
+        low_v: 1.0,
+        high_v: 4.0,
+        hold_ticks: 8,
+    };
+    board.send(Command::Excite(Excitation::new(steps, 40, 3.0, 50e-6).unwrap()));
+    let per_count = (board.cl.sense().to_amperes(2049) - board.cl.sense().to_amperes(2048)) as f64;
+    let mut i = 0.0f64;
+    for _ in 0..40 {
+        let counts = (2048.0 + i / per_count).round() as u16;
+        board.tick(counts, 24.0);
+        let v = board.cl.last_command().signed_duty() as f64 * 24.0;
+        i = a * i + b * v;
+    }
+    let Reply::Identified {
+        resistance_ohm,
+        inductance_h,
+        samples,
+        ..
+    } = ask(
+        &mut link,
+        &mut board,
+        20,
+        Request::IdentifyCapture { delay_samples: 0 },
+    )
+    else {
+        panic!("identified")
+    };
+    assert_eq!(samples, 32);
+    // The sense's quantisation (4 mA on 0.5 to 2 A) is what is left.
+    assert!((resistance_ohm as f64 / r - 1.0).abs() < 0.02, "{resistance_ohm}");
+    assert!((inductance_h as f64 / l - 1.0).abs() < 0.03, "{inductance_h}");
+    // Without an excitation in the record: nothing to fit.
+    let arm = Request::ArmCapture {
+        trigger: TriggerWire::Immediate,
+        decimation: 1,
+        samples: 8,
+    };
+    ask(&mut link, &mut board, 20, arm);
+    for _ in 0..8 {
+        board.tick(2048, 24.0);
+    }
+    assert_eq!(
+        ask(
+            &mut link,
+            &mut board,
+            20,
+            Request::IdentifyCapture { delay_samples: 0 }
+        ),
+        Reply::NotIdentified {
+            reason: IdentifyReason::TooFewSamples
+        }
+    );
+}

@@ -117,6 +117,81 @@ pub enum Request {
         /// The measured current that stops it, A.
         current_limit_a: f32,
     },
+    /// Design gains on the device with pi-core's f32 design code
+    /// ([`Reply::Designed`] or [`Reply::DesignRefused`]); nothing is
+    /// applied (write them with [`Request::WriteGains`]).
+    Design {
+        /// The method.
+        method: MethodWire,
+        /// Winding resistance, ohm.
+        resistance_ohm: f32,
+        /// Winding inductance, H.
+        inductance_h: f32,
+        /// 2 % settling time asked, s.
+        settling_time_s: f32,
+        /// Overshoot allowed, percent.
+        overshoot_pct: f32,
+        /// Largest 10-90 % rise time, s; 0 for none.
+        rise_time_s: f32,
+        /// Sample-to-update delay, control periods (0 to 1).
+        delay_periods: f32,
+    },
+    /// Identify R and L on the device from the capture's samples taken
+    /// during an excitation, with pi-core's least squares in f32
+    /// ([`Reply::Identified`] or [`Reply::NotIdentified`]).
+    IdentifyCapture {
+        /// Kept samples between a recorded duty and the current it first
+        /// moves (0 to 7).
+        delay_samples: u8,
+    },
+}
+
+/// A design method on the wire ([`crate::design::Method`]).
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub enum MethodWire {
+    /// The sampled loop's poles placed directly.
+    DirectDiscrete,
+    /// Continuous pole placement.
+    RootLocus,
+    /// The lumped small time constant.
+    ModulusOptimum,
+    /// The PI zero on the winding's pole.
+    Cancellation,
+}
+
+/// Why the device could not design, on the wire ([`crate::design::DesignError`]).
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub enum DesignReason {
+    /// `field` must be finite and above zero (`value`).
+    NotPositive,
+    /// The overshoot (`value`, a fraction) must be from 0 up to 1.
+    OvershootOutOfRange,
+    /// The settling time (`value`) is slower than the winding by itself;
+    /// `nearest` is the slowest this method can give.
+    SettlingTooSlow,
+    /// The spec is too fast for the period; `nearest` is about the fastest
+    /// settling time that stays stable.
+    UnstableRemainder,
+    /// This method does not handle a current filter.
+    FilterUnsupported,
+    /// The delay (`value`, periods) must be between 0 and 1.
+    DelayOutOfRange,
+    /// The gains came out, but the sampled loop with them is unstable.
+    Unstable,
+    /// Another reason.
+    Other,
+}
+
+/// Why the device could not identify, on the wire
+/// ([`crate::identify::IdentifyError`]).
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub enum IdentifyReason {
+    /// Fewer than four usable samples (no excitation in the capture?).
+    TooFewSamples,
+    /// The samples do not fit an R-L load at this period.
+    NotAnRlLoad,
+    /// Another reason.
+    Other,
 }
 
 /// An excitation's waveform on the wire ([`crate::excitation::Waveform`]).
@@ -260,6 +335,45 @@ pub enum Reply {
     /// An excitation was asked while the loop is running or exciting;
     /// disable it first.
     NotDisabled,
+    /// Gains designed on the device (not applied).
+    Designed {
+        /// V/A.
+        kp_v_per_a: f32,
+        /// s.
+        ti_s: f32,
+        /// The method's setpoint weight.
+        setpoint_weight: f32,
+    },
+    /// The device could not design.
+    DesignRefused {
+        /// Why.
+        reason: DesignReason,
+        /// The field concerned, where one is.
+        field: Name,
+        /// The value concerned.
+        value: f32,
+        /// The nearest value that works, where the reason gives one (else 0).
+        nearest: f32,
+    },
+    /// R and L identified on the device, with standard deviations.
+    Identified {
+        /// Ohm.
+        resistance_ohm: f32,
+        /// H.
+        inductance_h: f32,
+        /// Ohm.
+        resistance_sd_ohm: f32,
+        /// H.
+        inductance_sd_h: f32,
+        /// Samples used.
+        #[serde(with = "postcard::fixint::le")]
+        samples: u16,
+    },
+    /// The device could not identify.
+    NotIdentified {
+        /// Why.
+        reason: IdentifyReason,
+    },
 }
 
 /// The loop's state on the wire.

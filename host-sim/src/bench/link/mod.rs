@@ -13,7 +13,8 @@ use std::time::{Duration, Instant};
 
 use pi_core::link::frame::{self, FrameDecoder, MAX_FRAME};
 use pi_core::link::{
-    Needs, Refusal, Reply, ReplyFrame, Request, RequestFrame, SampleWire, StatusWire, TriggerWire, VERSION,
+    DesignReason, IdentifyReason, MethodWire, Reply, ReplyFrame, Request, RequestFrame, SampleWire,
+    StatusWire, TriggerWire, VERSION,
 };
 
 /// Why a request got no usable answer, in one sentence.
@@ -27,6 +28,10 @@ impl std::fmt::Display for LinkError {
 }
 
 impl std::error::Error for LinkError {}
+
+mod text;
+
+pub use text::{capture_csv, fault_names, refusal_text, state_name};
 
 fn fail(s: impl Into<String>) -> LinkError {
     LinkError(s.into())
@@ -50,6 +55,40 @@ pub struct BoardGains {
     pub ti_s: f64,
     /// 0 to 1.
     pub setpoint_weight: f64,
+}
+
+/// R and L the board identified itself, with standard deviations.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct BoardEstimate {
+    /// Ohm.
+    pub resistance_ohm: f64,
+    /// H.
+    pub inductance_h: f64,
+    /// Ohm.
+    pub resistance_sd_ohm: f64,
+    /// H.
+    pub inductance_sd_h: f64,
+    /// Samples used.
+    pub samples: usize,
+}
+
+/// What the board is asked to design for.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct DesignAsk {
+    /// The method.
+    pub method: MethodWire,
+    /// Ohm.
+    pub resistance_ohm: f64,
+    /// H.
+    pub inductance_h: f64,
+    /// 2 % settling time, s.
+    pub settling_time_s: f64,
+    /// Percent.
+    pub overshoot_pct: f64,
+    /// Largest 10-90 % rise time, s.
+    pub rise_time_s: Option<f64>,
+    /// Sample-to-update delay, periods.
+    pub delay_periods: f64,
 }
 
 /// A capture read back from a board.
@@ -214,6 +253,94 @@ impl<P: Read + Write> BoardLink<P> {
         }
     }
 
+    /// Gains designed on the board with its own f32 design code (not
+    /// applied).
+    pub fn design(&mut self, ask: &DesignAsk) -> Result<BoardGains, LinkError> {
+        let request = Request::Design {
+            method: ask.method,
+            resistance_ohm: ask.resistance_ohm as f32,
+            inductance_h: ask.inductance_h as f32,
+            settling_time_s: ask.settling_time_s as f32,
+            overshoot_pct: ask.overshoot_pct as f32,
+            rise_time_s: ask.rise_time_s.unwrap_or(0.0) as f32,
+            delay_periods: ask.delay_periods as f32,
+        };
+        match self.request(request)? {
+            Reply::Designed {
+                kp_v_per_a,
+                ti_s,
+                setpoint_weight,
+            } => Ok(BoardGains {
+                kp_v_per_a: kp_v_per_a as f64,
+                ti_s: ti_s as f64,
+                setpoint_weight: setpoint_weight as f64,
+            }),
+            Reply::DesignRefused {
+                reason,
+                field,
+                value,
+                nearest,
+            } => Err(fail(format!(
+                "the board could not design: {}",
+                match reason {
+                    DesignReason::NotPositive => format!("{} = {value} must be above 0", field.as_str()),
+                    DesignReason::OvershootOutOfRange => {
+                        format!("the overshoot, {value} %, must be from 0 % up to 100 %")
+                    }
+                    DesignReason::SettlingTooSlow => format!(
+                        "a settling time of {value:.3e} s is slower than the winding settles by itself; ask for {nearest:.3e} s or less, or use the cancellation method"
+                    ),
+                    DesignReason::UnstableRemainder => format!(
+                        "the settling time asked is too fast for the board's period; ask for about {nearest:.3e} s or more"
+                    ),
+                    DesignReason::FilterUnsupported =>
+                        "this method does not handle a current filter".to_string(),
+                    DesignReason::DelayOutOfRange => {
+                        format!("the delay, {value} periods, must be from 0 to 1 period")
+                    }
+                    DesignReason::Unstable => {
+                        "the gains would make the sampled loop unstable; ask for a slower settling time"
+                            .to_string()
+                    }
+                    _ => "the board gave a reason this program does not know".to_string(),
+                }
+            ))),
+            other => Err(refused(&request, &other)),
+        }
+    }
+
+    /// R and L the board fits to its capture's excitation with its own
+    /// least squares; `delay_samples` kept samples between a recorded duty
+    /// and the current it first moves.
+    pub fn identify_on_board(&mut self, delay_samples: u8) -> Result<BoardEstimate, LinkError> {
+        let request = Request::IdentifyCapture { delay_samples };
+        match self.request(request)? {
+            Reply::Identified {
+                resistance_ohm,
+                inductance_h,
+                resistance_sd_ohm,
+                inductance_sd_h,
+                samples,
+            } => Ok(BoardEstimate {
+                resistance_ohm: resistance_ohm as f64,
+                inductance_h: inductance_h as f64,
+                resistance_sd_ohm: resistance_sd_ohm as f64,
+                inductance_sd_h: inductance_sd_h as f64,
+                samples: samples as usize,
+            }),
+            Reply::NotIdentified { reason } => Err(fail(match reason {
+                IdentifyReason::TooFewSamples => {
+                    "the board could not identify: its capture holds no excitation (run `ampwright board PORT identify` first)"
+                }
+                IdentifyReason::NotAnRlLoad => {
+                    "the board could not identify: its capture does not fit an R-L load at its period"
+                }
+                _ => "the board could not identify, for a reason this program does not know",
+            })),
+            other => Err(refused(&request, &other)),
+        }
+    }
+
     /// Polls the status until `done` holds for it, or `limit` passes.
     pub fn wait_for(
         &mut self,
@@ -323,76 +450,4 @@ fn refused(request: &Request, reply: &Reply) -> LinkError {
             "the board gave an unexpected answer when asked to {what}"
         )),
     }
-}
-
-/// A refusal in words: the field, its value, what it needs.
-pub fn refusal_text(r: &Refusal) -> String {
-    let needs = match r.needs {
-        Needs::Finite => "a finite number".to_string(),
-        Needs::Positive => "a value above 0".to_string(),
-        Needs::NonNegative => "a value of 0 or more".to_string(),
-        Needs::Within { min, max } => format!("a value from {min} to {max}"),
-        Needs::Above(other) => format!("a value above {}", other.as_str()),
-        Needs::Below(other) => format!("a value below {}", other.as_str()),
-        Needs::DifferentFrom(other) => format!("a value different from {}", other.as_str()),
-        Needs::AtLeastOne => "at least one".to_string(),
-        _ => "another value".to_string(),
-    };
-    format!("{} = {} must be {needs}", r.field.as_str(), r.value)
-}
-
-/// Latched fault bits in words.
-pub fn fault_names(bits: u16) -> String {
-    let names: Vec<String> = pi_core::FaultSet::from_bits(bits)
-        .iter()
-        .map(|f| f.to_string())
-        .collect();
-    if names.is_empty() {
-        "none".into()
-    } else {
-        names.join(", ")
-    }
-}
-
-/// The loop's state code in words.
-pub fn state_name(code: u8) -> &'static str {
-    match code {
-        0 => "disabled",
-        1 => "running",
-        2 => "faulted",
-        3 => "exciting",
-        _ => "unknown",
-    }
-}
-
-/// A capture as the CSV `identify` and `compare` read: `time_s`,
-/// `current_a`, `duty` (signed) and `bus_v`, `commanded_v`, `state`, and
-/// `request_a` when `request` gives the step the host asked for (`from`
-/// until the first sample whose setpoint leaves it, `to` after).
-pub fn capture_csv(c: &BoardCapture, request: Option<(f64, f64)>) -> String {
-    let mut out = String::from("time_s,current_a,duty,bus_v,commanded_v,setpoint_a,state");
-    if request.is_some() {
-        out.push_str(",request_a");
-    }
-    out.push('\n');
-    let mut stepped = false;
-    for (k, s) in c.samples.iter().enumerate() {
-        let duty = s.duty_q15 as f64 / 32767.0;
-        out.push_str(&format!(
-            "{:.9e},{},{:.6},{},{},{},{}",
-            k as f64 * c.period_s,
-            s.current_a,
-            duty,
-            s.bus_v,
-            s.commanded_v,
-            s.setpoint_a,
-            s.state
-        ));
-        if let Some((from, to)) = request {
-            stepped |= (s.setpoint_a as f64 - from).abs() > 1e-6;
-            out.push_str(&format!(",{}", if stepped { to } else { from }));
-        }
-        out.push('\n');
-    }
-    out
 }

@@ -6,167 +6,17 @@ use std::io::Write;
 use std::path::PathBuf;
 use std::time::Duration;
 
-use clap::Subcommand;
-use pi_core::link::{Request, TriggerWire};
+use pi_core::link::{MethodWire, Request, TriggerWire};
 
-use crate::bench::link::{BoardLink, capture_csv, fault_names, state_name};
+use crate::bench::link::{BoardLink, DesignAsk, capture_csv, fault_names, state_name};
 use crate::bringup::{self, BringUpOptions, IdentifyPlan, Rotor, StepPlan};
+
+mod args;
+
 use crate::plot::{fit_svg, overlay_svg};
 use crate::results::compare::sig;
 use crate::scenario::Params;
-
-/// Arguments of `ampwright board`.
-#[derive(Debug, clap::Args)]
-pub struct BoardArgs {
-    /// The board's serial port (`/dev/ttyACM0`, `COM3`, or the path
-    /// `ampwright virtual-board` prints).
-    pub port: String,
-    /// The line's speed, baud.
-    #[arg(long, default_value_t = 115_200)]
-    pub baud: u32,
-    /// How long to wait for each reply, ms.
-    #[arg(long, default_value_t = 1000)]
-    pub timeout_ms: u64,
-    /// Folder for the captures and pictures (created if missing).
-    #[arg(long, default_value = "ampwright-out", global = true)]
-    pub out: PathBuf,
-    /// What to do.
-    #[command(subcommand)]
-    pub action: BoardAction,
-}
-
-/// How the shaft is held, as the command line says it.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, clap::ValueEnum)]
-pub enum RotorArg {
-    /// Clamped: R and L only.
-    Held,
-    /// Free to turn (give --inertia-kg-m2): Ke as well.
-    Free,
-}
-
-/// A capture trigger, as the command line says it.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, clap::ValueEnum)]
-pub enum TriggerArg {
-    /// At once.
-    Immediate,
-    /// When the target current changes.
-    Setpoint,
-    /// When an excitation starts.
-    Excitation,
-    /// When the measured current rises through --level-a.
-    Rising,
-    /// When it falls through --level-a.
-    Falling,
-}
-
-/// What to do with the board.
-#[derive(Debug, Subcommand)]
-pub enum BoardAction {
-    /// The board's loop state, faults, gains, limits and capture size.
-    Status,
-    /// Stop the loop: safe output.
-    Disable,
-    /// Clear latched faults (the loop stays disabled).
-    Clear,
-    /// Write new gains (applied without a bump while the loop runs).
-    SetGains {
-        /// Proportional gain, V/A.
-        #[arg(long)]
-        kp_v_per_a: f32,
-        /// Integral time, s.
-        #[arg(long)]
-        ti_s: f32,
-        /// Share of the setpoint in the proportional term, 0 to 1.
-        #[arg(long, default_value_t = 1.0)]
-        setpoint_weight: f32,
-    },
-    /// Arm the capture, wait for it to fill, write it as a capture CSV.
-    Capture {
-        /// What starts it.
-        #[arg(long, value_enum, default_value_t = TriggerArg::Immediate)]
-        trigger: TriggerArg,
-        /// The level of a rising or falling trigger, A.
-        #[arg(long, default_value_t = 0.0)]
-        level_a: f32,
-        /// One tick kept in this many.
-        #[arg(long, default_value_t = 1)]
-        decimation: u16,
-        /// Samples to keep (at most the board's capacity).
-        #[arg(long)]
-        samples: u16,
-        /// Give up waiting for the trigger after this long, s.
-        #[arg(long, default_value_t = 30.0)]
-        wait_s: f64,
-    },
-    /// A closed-loop current step with a capture, written as a capture CSV
-    /// that `ampwright identify` and `ampwright compare` read.
-    Step {
-        /// The current after the step, A.
-        #[arg(long)]
-        to_a: f64,
-        /// The current before it, A.
-        #[arg(long, default_value_t = 0.0)]
-        from_a: f64,
-        /// How long to capture, s.
-        #[arg(long, default_value_t = 0.02)]
-        window_s: f64,
-        /// Run it: the load is driven.
-        #[arg(long)]
-        energise: bool,
-    },
-    /// Open-loop voltage steps with a capture, fitted by the host: R and L
-    /// (and Ke with the shaft free), a `[motor]` section, a picture.
-    Identify {
-        /// How the shaft is during the test.
-        #[arg(long, value_enum)]
-        rotor: RotorArg,
-        /// Rotor and load inertia, kg m^2 (with --rotor free).
-        #[arg(long)]
-        inertia_kg_m2: Option<f64>,
-        /// A rough resistance (ohmmeter or datasheet), ohm: sets the test
-        /// voltage and the time at each level.
-        #[arg(long)]
-        resistance_ohm: f64,
-        /// A rough inductance, H.
-        #[arg(long)]
-        inductance_h: f64,
-        /// The current the high level aims at, A (default half the board's
-        /// setpoint limit).
-        #[arg(long)]
-        test_current_a: Option<f64>,
-        /// Run it: the load is driven.
-        #[arg(long)]
-        energise: bool,
-    },
-    /// Identify, design from the scenario's spec, write the gains, verify
-    /// with a step, compare it with the simulation, and give a verdict with
-    /// the gains.
-    BringUp {
-        /// The scenario: its spec, its drive chain, and rough R and L.
-        scenario: PathBuf,
-        /// How the shaft is during the identification and the step.
-        #[arg(long, value_enum)]
-        rotor: RotorArg,
-        /// Rotor and load inertia, kg m^2 (with --rotor free).
-        #[arg(long)]
-        inertia_kg_m2: Option<f64>,
-        /// The identification's current, A (default half the board's limit).
-        #[arg(long)]
-        test_current_a: Option<f64>,
-        /// The verification step, A (default the test current).
-        #[arg(long)]
-        step_a: Option<f64>,
-        /// The comparison's tolerance: normalised RMS error, percent.
-        #[arg(long, default_value_t = 10.0)]
-        max_error_pct: f64,
-        /// Print the result as JSON.
-        #[arg(long)]
-        json: bool,
-        /// Run it: the load is driven.
-        #[arg(long)]
-        energise: bool,
-    },
-}
+pub use args::{BoardAction, BoardArgs, MethodArg, RotorArg, TriggerArg};
 
 fn rotor(arg: RotorArg, inertia: Option<f64>) -> Result<Rotor, String> {
     match (arg, inertia) {
@@ -329,6 +179,68 @@ fn run_inner(args: &BoardArgs) -> Result<i32, String> {
                 path.display()
             );
         }
+        BoardAction::Design {
+            method,
+            resistance_ohm,
+            inductance_h,
+            settling_time_s,
+            overshoot_pct,
+            rise_time_s,
+            delay_periods,
+            write: apply,
+        } => {
+            for (flag, v) in [
+                ("--resistance-ohm", *resistance_ohm),
+                ("--inductance-h", *inductance_h),
+                ("--settling-time-s", *settling_time_s),
+                ("--rise-time-s", rise_time_s.unwrap_or(1.0)),
+            ] {
+                if !(v.is_finite() && v > 0.0) {
+                    return Err(format!("{flag} = {v} must be above 0"));
+                }
+            }
+            if !(0.0..100.0).contains(overshoot_pct) {
+                return Err(format!(
+                    "--overshoot-pct = {overshoot_pct} must be from 0 % up to (not including) 100 %"
+                ));
+            }
+            if !(0.0..=1.0).contains(delay_periods) {
+                return Err(format!(
+                    "--delay-periods = {delay_periods} must be from 0 to 1 control period"
+                ));
+            }
+            let ask = DesignAsk {
+                method: match method {
+                    MethodArg::DirectDiscrete => MethodWire::DirectDiscrete,
+                    MethodArg::RootLocus => MethodWire::RootLocus,
+                    MethodArg::ModulusOptimum => MethodWire::ModulusOptimum,
+                    MethodArg::Cancellation => MethodWire::Cancellation,
+                },
+                resistance_ohm: *resistance_ohm,
+                inductance_h: *inductance_h,
+                settling_time_s: *settling_time_s,
+                overshoot_pct: *overshoot_pct,
+                rise_time_s: *rise_time_s,
+                delay_periods: *delay_periods,
+            };
+            let g = link.design(&ask).map_err(|e| e.0)?;
+            let _ = writeln!(
+                out,
+                "the board designed Kp = {} V/A, Ti = {} ms, setpoint weight {} (f32, its own design code)",
+                sig(g.kp_v_per_a),
+                sig(g.ti_s * 1e3),
+                sig(g.setpoint_weight)
+            );
+            if *apply {
+                link.command(Request::WriteGains {
+                    kp_v_per_a: g.kp_v_per_a as f32,
+                    ti_s: g.ti_s as f32,
+                    setpoint_weight: g.setpoint_weight as f32,
+                })
+                .map_err(|e| e.0)?;
+                let _ = writeln!(out, "written: the board runs them");
+            }
+        }
         BoardAction::Identify {
             rotor: r,
             inertia_kg_m2,
@@ -383,9 +295,21 @@ fn run_inner(args: &BoardArgs) -> Result<i32, String> {
                 &id.capture.voltage_v,
             );
             let svg = write("board-identify-fit.svg", &svg)?;
+            let on_board = match &id.on_board {
+                Ok(b) => format!(
+                    "the board's own least squares (f32, {} samples): {} ohm through the bridge, {} mH\n",
+                    b.samples,
+                    sig(b.resistance_ohm),
+                    sig(b.inductance_h * 1e3)
+                ),
+                Err(e) => format!("the board's own least squares: none ({e})\n"),
+            };
+            let on_board = format!(
+                "{on_board}R was measured through the bridge: it includes the switches' on-resistance (two of them in series with a sign-magnitude bridge); the winding alone is that much less\n"
+            );
             let _ = writeln!(
                 out,
-                "{}\n{}wrote {}\nwrote {}",
+                "{}\n{on_board}{}wrote {}\nwrote {}",
                 table.trim_end(),
                 section,
                 csv.display(),
