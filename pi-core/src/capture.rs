@@ -220,10 +220,13 @@ impl<const N: usize> Capture<N> {
             filled: 0,
             wanted: 0,
             countdown: 0,
+            // Never armed: nothing wanted. Every byte of a new capture is
+            // zero, so a `static` one goes to .bss and costs no flash (an
+            // initial image of the samples would be the capture's size).
             spec: CaptureSpec {
                 trigger: Trigger::Immediate,
-                decimation: 1,
-                samples: 1,
+                decimation: 0,
+                samples: 0,
             },
             armed_target_a: 0.0,
             last_current_a: 0.0,
@@ -264,7 +267,8 @@ impl<const N: usize> Capture<N> {
         self.state
     }
 
-    /// The spec it was last armed with.
+    /// The spec it was last armed with (0 samples, decimation 0 before the
+    /// first arming).
     pub fn spec(&self) -> CaptureSpec {
         self.spec
     }
