@@ -99,3 +99,114 @@ fn the_link_runs_through_a_pseudo_terminal() {
     done.store(true, Ordering::Relaxed);
     assert_eq!(server.join().unwrap(), 3);
 }
+
+/// Serves `vb` on a new pseudo-terminal from a thread until the flag is
+/// set; the port's path, the flag, and the thread (which returns the board).
+#[cfg(unix)]
+fn serve_on_pty(
+    mut vb: VirtualBoard,
+) -> (
+    String,
+    std::sync::Arc<std::sync::atomic::AtomicBool>,
+    std::thread::JoinHandle<VirtualBoard>,
+) {
+    use serialport::SerialPort;
+    use std::sync::atomic::Ordering;
+    let (mut master, slave) = serialport::TTYPort::pair().unwrap();
+    master.set_timeout(Duration::from_millis(5)).unwrap();
+    let path = slave.name().unwrap();
+    let done = std::sync::Arc::new(std::sync::atomic::AtomicBool::new(false));
+    let stop = done.clone();
+    let server = std::thread::spawn(move || {
+        vb.serve(&mut master, |_| !stop.load(Ordering::Relaxed)).unwrap();
+        drop(slave);
+        vb
+    });
+    (path, done, server)
+}
+
+/// The board commands as a user runs them, against the virtual board on a
+/// pseudo-terminal: nothing is driven without `--energise`, a step is
+/// written as a capture that `compare` reads and that agrees with the
+/// scenario, and a refused value is exit 2.
+#[cfg(unix)]
+#[test]
+fn the_board_commands_drive_nothing_without_energise_and_write_captures() {
+    use pi_core::capture::CaptureState;
+    use pi_core::link::Board;
+    use std::sync::atomic::Ordering;
+
+    let out = ampwright_tests::temp_dir("board_commands");
+    let run = |path: &str, args: &[&str]| {
+        let mut all = vec!["ampwright", "board", path, "--out", out.to_str().unwrap()];
+        all.extend_from_slice(args);
+        host_sim::cli::main(all.iter().map(std::ffi::OsString::from))
+    };
+    let (path, done, server) = serve_on_pty(board().board);
+    assert_eq!(run(&path, &["status"]), 0);
+    // Without --energise: exit 2, and the loop never ran.
+    assert_eq!(run(&path, &["step", "--to-a", "1.5"]), 2);
+    assert_eq!(
+        run(
+            &path,
+            &[
+                "identify",
+                "--rotor",
+                "held",
+                "--resistance-ohm",
+                "1.9",
+                "--inductance-h",
+                "2.4e-3"
+            ]
+        ),
+        2
+    );
+    assert_eq!(
+        run(&path, &["set-gains", "--kp-v-per-a", "-3", "--ti-s", "1e-3"]),
+        2
+    );
+    done.store(true, Ordering::Relaxed);
+    let vb = server.join().unwrap();
+    let mut fw = vb.firmware().clone();
+    let s = fw.status();
+    assert_eq!(
+        (s.state, s.excitation_end, s.setpoint_a),
+        (pi_core::LoopState::Disabled, None, 0.0)
+    );
+    assert_eq!(fw.capture_progress().0, CaptureState::Idle, "never armed");
+    assert_eq!(fw.refused(), 0);
+    assert_eq!(
+        fw.gains().kp_v_per_a(),
+        12.06,
+        "the refused gains changed nothing"
+    );
+    assert!(!out.join("board-step.csv").exists());
+
+    let (path, done, server) = serve_on_pty(vb);
+    assert_eq!(
+        run(
+            &path,
+            &["step", "--to-a", "1.5", "--window-s", "0.008", "--energise"]
+        ),
+        0
+    );
+    done.store(true, Ordering::Relaxed);
+    let vb = server.join().unwrap();
+    // The step left the loop disabled.
+    assert_eq!(vb.firmware().current_loop().state(), pi_core::LoopState::Disabled);
+    let csv = out.join("board-step.csv");
+    let cap = host_sim::bench::capture::read(
+        std::fs::File::open(&csv).unwrap(),
+        "board-step.csv",
+        &Default::default(),
+    )
+    .unwrap();
+    let setpoint = cap.setpoint_a.clone().unwrap();
+    assert_eq!((setpoint[0], *setpoint.last().unwrap()), (0.0, 1.5));
+    // The board ran the scenario's own gains on the sample: the simulation
+    // of the sample's scenario driven the same way agrees with it.
+    let sample = host_sim::prepare::load(&scenario("carousel_bench.toml")).unwrap();
+    let c = host_sim::results::compare::compare(&cap, Some(&setpoint), &sample.scenario).unwrap();
+    assert!(c.nrmse < 0.05, "{}", c.nrmse);
+    assert_eq!(c.steps.len(), 1);
+}

@@ -71,6 +71,7 @@ pub enum BoardAction {
     /// Clear latched faults (the loop stays disabled).
     Clear,
     /// Write new gains (applied without a bump while the loop runs).
+    #[command(allow_negative_numbers = true)]
     SetGains {
         /// Proportional gain, V/A.
         #[arg(long)]
@@ -83,6 +84,7 @@ pub enum BoardAction {
         setpoint_weight: f32,
     },
     /// Arm the capture, wait for it to fill, write it as a capture CSV.
+    #[command(allow_negative_numbers = true)]
     Capture {
         /// What starts it.
         #[arg(long, value_enum, default_value_t = TriggerArg::Immediate)]
@@ -102,6 +104,7 @@ pub enum BoardAction {
     },
     /// A closed-loop current step with a capture, written as a capture CSV
     /// that `ampwright identify` and `ampwright compare` read.
+    #[command(allow_negative_numbers = true)]
     Step {
         /// The current after the step, A.
         #[arg(long)]
@@ -118,6 +121,7 @@ pub enum BoardAction {
     },
     /// Open-loop voltage steps with a capture, fitted by the host: R and L
     /// (and Ke with the shaft free), a `[motor]` section, a picture.
+    #[command(allow_negative_numbers = true)]
     Identify {
         /// How the shaft is during the test.
         #[arg(long, value_enum)]
@@ -142,6 +146,7 @@ pub enum BoardAction {
     },
     /// Design gains on the board with its own f32 design code, and print
     /// them; `--write` makes the board run them.
+    #[command(allow_negative_numbers = true)]
     Design {
         /// The method.
         #[arg(long, value_enum, default_value_t = MethodArg::Cancellation)]
@@ -171,6 +176,7 @@ pub enum BoardAction {
     /// Identify, design from the scenario's spec, write the gains, verify
     /// with a step, compare it with the simulation, and give a verdict with
     /// the gains.
+    #[command(allow_negative_numbers = true)]
     BringUp {
         /// The scenario: its spec, its drive chain, and rough R and L.
         scenario: PathBuf,

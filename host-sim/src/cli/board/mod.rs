@@ -125,7 +125,12 @@ fn run_inner(args: &BoardArgs) -> Result<i32, String> {
                 ti_s: *ti_s,
                 setpoint_weight: *setpoint_weight,
             })
-            .map_err(|e| e.0)?;
+            // The board names its fields; the user wrote the options.
+            .map_err(|e| {
+                e.0.replace("kp_v_per_a =", "--kp-v-per-a =")
+                    .replace("ti_s =", "--ti-s =")
+                    .replace("setpoint_weight =", "--setpoint-weight =")
+            })?;
             let g = link.gains().map_err(|e| e.0)?;
             let _ = writeln!(
                 out,
