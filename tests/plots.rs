@@ -207,3 +207,29 @@ fn the_capture_pictures_are_consistent() {
         check(file, &std::fs::read_to_string(dir.join(file)).unwrap());
     }
 }
+
+#[test]
+fn the_sweep_pictures_are_consistent() {
+    let dir = ampwright_tests::temp_dir("sweep-pictures");
+    let scenario =
+        std::path::PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("../host-sim/scenarios/carousel_step.toml");
+    let args = [
+        "ampwright",
+        "sweep",
+        scenario.to_str().unwrap(),
+        "--runs",
+        "40",
+        "--corners",
+        "half",
+        "--quiet",
+        "--out",
+        dir.to_str().unwrap(),
+    ];
+    assert_eq!(host_sim::cli::main(args.iter().map(Into::into)), 0);
+    for file in [
+        "carousel-step-sweep-histograms.svg",
+        "carousel-step-sweep-scatter.svg",
+    ] {
+        check(file, &std::fs::read_to_string(dir.join(file)).unwrap());
+    }
+}

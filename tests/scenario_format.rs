@@ -181,7 +181,7 @@ fn inputs_that_would_be_ignored_or_absurd_are_refused_in_words() {
         ),
         (
             "",
-            &[("supply_v", "supply_v = 1e9")],
+            &[("supply_v = 24.0", "supply_v = 1e9")],
             "bridge.supply_v = 1e9 must be between 0.001 and 10000",
         ),
     ];

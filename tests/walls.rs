@@ -164,6 +164,12 @@ fn the_host_walls_hold() {
     forbid("bench", &["cli", "plot", "results", "prepare", "bringup"]);
     // The board commands' work: no printing, no pictures.
     forbid("bringup", &["cli", "plot"]);
+    // The sweep computes; the command line reads and writes its files.
+    forbid("sweep", &["cli", "plot"]);
+    for f in rust_files(&root().join("host-sim/src/sweep")) {
+        let text = std::fs::read_to_string(&f).unwrap();
+        assert!(!text.contains("std::fs"), "{} does file I/O", f.display());
+    }
     // The command line parses, calls and prints: no control math of its own.
     for f in rust_files(&root().join("host-sim/src/cli")) {
         let text = std::fs::read_to_string(&f).unwrap();

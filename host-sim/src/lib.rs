@@ -58,6 +58,7 @@ pub mod results;
 pub mod scenario;
 pub mod sim;
 pub mod spec;
+pub mod sweep;
 pub mod tuning;
 
 pub use model_error::ModelError;

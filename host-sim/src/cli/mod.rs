@@ -14,6 +14,7 @@ pub mod design;
 pub mod identify;
 pub mod progress;
 pub mod simulate;
+pub mod sweep;
 pub mod virtual_board;
 
 use std::ffi::OsString;
@@ -23,6 +24,7 @@ pub use compare::CompareArgs;
 pub use design::DesignArgs;
 pub use identify::IdentifyArgs;
 pub use simulate::SimulateArgs;
+pub use sweep::SweepArgs;
 pub use virtual_board::VirtualBoardArgs;
 
 use clap::{Parser, Subcommand};
@@ -56,6 +58,11 @@ pub enum CommandArgs {
     /// the way the board was: the steps side by side, the normalised error,
     /// the differences in words, and a picture of the two.
     Compare(CompareArgs),
+    /// Run one firmware over many boards: the scenario's `[tolerances]` drawn
+    /// (Monte-Carlo, corners or both), each board run through the real loop
+    /// and analysed; the yield, the worst cases (each written as a scenario
+    /// that reproduces it), histograms, a scatter and a CSV of every run.
+    Sweep(SweepArgs),
     /// Talk to a board over its bench link (pi-core's `link` feature): its
     /// status, gains, captures, a step, an identification, and the guided
     /// bring-up from identification to verified gains.
@@ -124,6 +131,7 @@ pub fn main(args: impl IntoIterator<Item = OsString>) -> i32 {
         CommandArgs::Design(a) => design::run(&a),
         CommandArgs::Identify(a) => identify::run(&a),
         CommandArgs::Compare(a) => compare::run(&a),
+        CommandArgs::Sweep(a) => sweep::run(&a),
         CommandArgs::Board(a) => board::run(&a),
         CommandArgs::VirtualBoard(a) => virtual_board::run(&a),
     }

@@ -210,13 +210,20 @@ impl SenseChain {
     /// The calibration the firmware would use for this chain: nominal shunt, gain
     /// and offset (the offset error is unknown to it).
     pub fn nominal_calibration(&self) -> Result<CurrentSense, ConfigError> {
+        self.calibration_for(self.params.shunt_ohm, self.params.amplifier_gain)
+    }
+
+    /// The calibration of a firmware that assumes `shunt_ohm` and
+    /// `amplifier_gain` (a board's parts differ from what its firmware was
+    /// written for by their tolerances).
+    pub fn calibration_for(&self, shunt_ohm: f64, amplifier_gain: f64) -> Result<CurrentSense, ConfigError> {
         let p = &self.params;
         let offset_counts = p.amplifier_offset_v / p.adc_reference_v * (1u32 << p.adc_bits) as f64;
         CurrentSense::from_shunt(
             p.adc_bits,
             p.adc_reference_v as f32,
-            p.shunt_ohm as f32,
-            p.amplifier_gain as f32,
+            shunt_ohm as f32,
+            amplifier_gain as f32,
             offset_counts as f32,
         )
     }

@@ -6,9 +6,11 @@ pub mod long_run;
 pub mod root_locus;
 pub mod step_response;
 pub mod svg;
+pub mod sweep;
 
 pub use fit::{fit_svg, overlay_svg};
 pub use frequency_response::frequency_response_svg;
 pub use long_run::long_run_svg;
 pub use root_locus::root_locus_svg;
 pub use step_response::{PlotEvent, StepPlot, step_response_svg};
+pub use sweep::{sweep_histograms_svg, sweep_scatter_svg};

@@ -307,7 +307,10 @@ impl Params {
         )
         .map_err(|e| core(Site::Duty, e))?;
         let calibration = sense
-            .nominal_calibration()
+            .calibration_for(
+                c.calibration_shunt_ohm.unwrap_or(self.sense.shunt_ohm),
+                c.calibration_amplifier_gain.unwrap_or(self.sense.amplifier_gain),
+            )
             .map_err(|e| core(Site::Calibration, e))?;
         let mut cfg =
             LoopConfig::new(calibration, setpoint, supervisor, pi, duty).map_err(|e| core(Site::Loop, e))?;

@@ -237,6 +237,11 @@ pub(super) fn from_file(f: File, fallback_name: &str) -> Result<Params, Scenario
         events,
         load_profile,
         faults,
+        tolerances: f
+            .tolerances
+            .as_ref()
+            .map(super::tolerances::from_section)
+            .transpose()?,
     })
 }
 
@@ -336,6 +341,17 @@ fn controller(f: &File) -> Result<ControllerParams, ScenarioError> {
             .into());
         }
     };
+    for (name, v) in [
+        ("controller.calibration_shunt_ohm", c.calibration_shunt_ohm),
+        (
+            "controller.calibration_amplifier_gain",
+            c.calibration_amplifier_gain,
+        ),
+    ] {
+        if let Some(v) = v {
+            ModelError::within(name, v, 1e-9, 1e6)?;
+        }
+    }
     Ok(ControllerParams {
         gains,
         setpoint_weight: c.setpoint_weight,
@@ -347,6 +363,8 @@ fn controller(f: &File) -> Result<ControllerParams, ScenarioError> {
         feedforward_resistance_ohm: c.feedforward_resistance_ohm,
         feedforward_back_emf_v_s_per_rad: c.feedforward_back_emf_v_s_per_rad,
         speed_feedback: c.speed_feedback,
+        calibration_shunt_ohm: c.calibration_shunt_ohm,
+        calibration_amplifier_gain: c.calibration_amplifier_gain,
         setpoint: SetpointParams {
             min_a: c.setpoint.min_a,
             max_a: c.setpoint.max_a,

@@ -112,6 +112,31 @@ pub(super) struct File {
     pub(super) load: Vec<LoadSection>,
     #[serde(default)]
     pub(super) faults: Vec<FaultSection>,
+    pub(super) tolerances: Option<TolerancesSection>,
+}
+
+/// What `ampwright sweep` varies.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub(super) struct TolerancesSection {
+    pub(super) runs: Option<u32>,
+    pub(super) seed: Option<u64>,
+    pub(super) winding_c: Option<[f64; 2]>,
+    pub(super) supply_v: Option<[f64; 2]>,
+    #[serde(default)]
+    pub(super) vary: Vec<VarySection>,
+}
+
+/// One varied field: its path and exactly one spread.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub(super) struct VarySection {
+    pub(super) field: String,
+    pub(super) uniform_pct: Option<f64>,
+    pub(super) triangular_pct: Option<f64>,
+    pub(super) normal_sigma_pct: Option<f64>,
+    pub(super) normal_sigma: Option<f64>,
+    pub(super) within: Option<[f64; 2]>,
 }
 
 #[derive(Debug, Deserialize)]
@@ -289,6 +314,8 @@ pub(super) struct ControllerSection {
     pub(super) feedforward_back_emf_v_s_per_rad: f64,
     #[serde(default)]
     pub(super) speed_feedback: bool,
+    pub(super) calibration_shunt_ohm: Option<f64>,
+    pub(super) calibration_amplifier_gain: Option<f64>,
     pub(super) setpoint: SetpointSection,
     pub(super) protection: ProtectionSection,
 }

@@ -10,6 +10,7 @@
 //!   what overrides, sweeps and identification change.
 //! * [`build`]: params to blocks and the firmware's `LoopConfig` ([`Scenario`]);
 //!   never designs.
+//! * [`tolerances`]: what a sweep varies, drawn and applied to [`Params`].
 //! * `names` (private): the one map from pi-core field names to the paths
 //!   and units the user wrote.
 //!
@@ -20,6 +21,7 @@ mod convert;
 mod file;
 mod names;
 pub mod params;
+pub mod tolerances;
 
 use std::path::Path;
 

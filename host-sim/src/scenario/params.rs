@@ -51,6 +51,8 @@ pub struct Params {
     pub load_profile: Vec<(f64, f64)>,
     /// Injected faults.
     pub faults: Vec<Injection>,
+    /// What a sweep varies, if the file says.
+    pub tolerances: Option<super::tolerances::Tolerances>,
 }
 
 /// PI gains as the scenario gives them.
@@ -106,6 +108,11 @@ pub struct ControllerParams {
     pub feedforward_back_emf_v_s_per_rad: f64,
     /// The firmware reads the speed.
     pub speed_feedback: bool,
+    /// The shunt the firmware's current conversion assumes, ohm; `None`:
+    /// the sense chain's.
+    pub calibration_shunt_ohm: Option<f64>,
+    /// The amplifier gain it assumes; `None`: the sense chain's.
+    pub calibration_amplifier_gain: Option<f64>,
     /// Setpoint limits and slew.
     pub setpoint: SetpointParams,
     /// Protections.
@@ -184,7 +191,40 @@ impl Params {
     pub fn from_toml(text: &str, fallback_name: &str) -> Result<Self, ScenarioError> {
         let params = super::convert::from_file(file::parse(text)?, fallback_name)?;
         params.validate()?;
+        // Every extreme of the tolerances must give a plant the model takes.
+        if let Some(t) = &params.tolerances {
+            for corner in t.corners(&params, false) {
+                if let Err(e) = t.apply(&params, &corner) {
+                    let values: Vec<String> = t
+                        .items
+                        .iter()
+                        .zip(&corner)
+                        .map(|(v, x)| format!("{} = {x}", v.field.path()))
+                        .collect();
+                    return Err(crate::model_error::ModelError::new(
+                        "tolerances",
+                        values.join(", "),
+                        format!("extremes the model accepts ({e})"),
+                    )
+                    .into());
+                }
+            }
+        }
         Ok(params)
+    }
+
+    /// The same scenario with every value the firmware was written for
+    /// made explicit (its output limit at this supply, the shunt and
+    /// amplifier gain its current conversion assumes), so a perturbed board
+    /// does not change the firmware with it.
+    pub fn with_firmware_pinned(&self) -> Params {
+        let mut p = self.clone();
+        let c = &mut p.controller;
+        c.output_limit_v = Some(c.output_limit_v.unwrap_or(self.bridge.supply_v));
+        c.calibration_shunt_ohm = Some(c.calibration_shunt_ohm.unwrap_or(self.sense.shunt_ohm));
+        c.calibration_amplifier_gain =
+            Some(c.calibration_amplifier_gain.unwrap_or(self.sense.amplifier_gain));
+        p
     }
 
     /// The largest setpoint magnitude, A.

@@ -279,13 +279,15 @@ fn analyse(
         r.continuous = Some(p.into());
     }
     let open = OpenLoop::new(&plant, sampling, &g);
-    r.stable = open.is_stable();
-    let m = analysis::margins(&open, ts, GRID_POINTS);
-    r.phase_margin_deg = m.phase_margin_deg;
-    r.gain_margin_db = m.gain_margin_db();
-    r.modulus_margin = Some(m.modulus_margin);
-    r.crossover_hz = m.crossover_hz;
-    r.largest_stable_period_s = analysis::largest_stable_period(&plant, sampling, &g);
+    let Ok(f) = super::figures::figures(b, &g) else {
+        return r;
+    };
+    r.stable = f.stable;
+    r.phase_margin_deg = f.phase_margin_deg;
+    r.gain_margin_db = f.gain_margin_db;
+    r.modulus_margin = Some(f.modulus_margin);
+    r.crossover_hz = f.crossover_hz;
+    r.largest_stable_period_s = f.largest_stable_period_s;
     if !r.stable {
         r.warnings
             .push("the sampled loop is unstable with these gains".into());
@@ -333,7 +335,7 @@ fn analyse(
         && b.rise_time_s
             .is_none_or(|limit| step::within(p.rise_time_s, limit));
     r.misses = misses;
-    if let Some(pm) = m.phase_margin_deg
+    if let Some(pm) = f.phase_margin_deg
         && pm < MIN_PHASE_MARGIN_DEG
     {
         r.warnings.push(format!(
