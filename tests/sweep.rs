@@ -241,35 +241,17 @@ fn pole_zero_cancellation_gains_on_another_inductance_follow_the_perturbed_loop(
     // N(p) exp(p t) / (p D'(p)). Its 10-90 % rise time, found on that
     // formula, is what the sweep's runs must show, up to the sampled loop's
     // small delay (a 2 us period against an 80 us time constant).
-    let (r, l0, kp) = (2.0f64, 2.0e-3f64, 25.0f64);
-    let text = winding("", "[tolerances]\nruns = 6\n\n[[tolerances.vary]]\nfield = \"motor.inductance_h\"\nwithin = [1.6e-3, 2.4e-3]\n")
-        .replace("kp_v_per_a = 6.0", "kp_v_per_a = 25.0")
-        .replace("control_period_s = 50e-6", "control_period_s = 2e-6")
-        .replace("pwm_frequency_hz = 20000.0", "pwm_frequency_hz = 500000.0")
-        .replace("duration_s = 0.03", "duration_s = 0.006");
-    let n = Nominal::new(Params::from_toml(&text, "t").unwrap()).unwrap();
+    let n = Nominal::new(Params::from_toml(
+        &cancellation(
+            "",
+            "[tolerances]\nruns = 6\n\n[[tolerances.vary]]\nfield = \"motor.inductance_h\"\nwithin = [1.6e-3, 2.4e-3]\n",
+        ),
+        "t",
+    )
+    .unwrap())
+    .unwrap();
     let plan = sweep::plan(&n, 6, Some(false));
     let runs = sweep::sweep(&n, &plan, &|| {});
-    let analytic_rise = |l: f64| {
-        let (a, b, c) = (l0 * l, l0 * (r + kp), kp * r);
-        let disc = (b * b - 4.0 * a * c).sqrt();
-        let poles = [(-b + disc) / (2.0 * a), (-b - disc) / (2.0 * a)];
-        let y = |t: f64| {
-            1.0 + poles
-                .iter()
-                .map(|&p| kp * (r + p * l0) * (p * t).exp() / (p * (2.0 * a * p + b)))
-                .sum::<f64>()
-        };
-        let cross = |level: f64| {
-            let (mut lo, mut hi) = (0.0, 5e-3);
-            for _ in 0..100 {
-                let mid = 0.5 * (lo + hi);
-                if y(mid) < level { lo = mid } else { hi = mid }
-            }
-            lo
-        };
-        cross(0.9) - cross(0.1)
-    };
     let ratios: Vec<f64> = runs
         .iter()
         .map(|run| {
@@ -377,4 +359,109 @@ fn bad_tolerances_are_refused_naming_the_entry() {
             .to_string();
         assert!(e.contains(expected), "expected {expected:?} in {e:?}");
     }
+}
+
+/// The cancellation case of the test above: R = 2 ohm, L0 = 2 mH, Kp = 25
+/// V/A, Ti = L0 / R, sampled every 2 us; `motor` is added to `[motor]`.
+fn cancellation(motor: &str, tolerances: &str) -> String {
+    winding("", tolerances)
+        .replace("locked_rotor = true", &format!("locked_rotor = true\n{motor}"))
+        .replace("kp_v_per_a = 6.0", "kp_v_per_a = 25.0")
+        .replace("control_period_s = 50e-6", "control_period_s = 2e-6")
+        .replace("pwm_frequency_hz = 20000.0", "pwm_frequency_hz = 500000.0")
+        .replace("duration_s = 0.03", "duration_s = 0.006")
+}
+
+/// The 10-90 % rise time of that loop on a winding of inductance `l`, from
+/// its transfer function (see the test above).
+fn analytic_rise(l: f64) -> f64 {
+    let (r, l0, kp) = (2.0f64, 2.0e-3f64, 25.0f64);
+    let (a, b, c) = (l0 * l, l0 * (r + kp), kp * r);
+    let disc = (b * b - 4.0 * a * c).sqrt();
+    let poles = [(-b + disc) / (2.0 * a), (-b - disc) / (2.0 * a)];
+    let y = |t: f64| {
+        1.0 + poles
+            .iter()
+            .map(|&p| kp * (r + p * l0) * (p * t).exp() / (p * (2.0 * a * p + b)))
+            .sum::<f64>()
+    };
+    let cross = |level: f64| {
+        let (mut lo, mut hi) = (0.0, 5e-3);
+        for _ in 0..100 {
+            let mid = 0.5 * (lo + hi);
+            if y(mid) < level { lo = mid } else { hi = mid }
+        }
+        lo
+    };
+    cross(0.9) - cross(0.1)
+}
+
+#[test]
+fn a_saturating_winding_rises_as_its_lower_inductance_says() {
+    // A curve at half the inductance everywhere is a winding of L0 / 2: the
+    // same run as the winding given as 1 mH, and the rise the perturbed
+    // loop's at L0 / 2 (this faster loop sampled every 1 us, so that the
+    // sampling's share stays under 2 %).
+    let rise = |motor: &str, period: &str| {
+        let text = cancellation(motor, "")
+            .replace("control_period_s = 2e-6", period)
+            .replace(
+                "pwm_frequency_hz = 500000.0",
+                if period.contains("1e-6") {
+                    "pwm_frequency_hz = 1000000.0"
+                } else {
+                    "pwm_frequency_hz = 500000.0"
+                },
+            );
+        let p = Params::from_toml(&text, "t").unwrap();
+        let (_, report) = host_sim::results::report::run(&p.build().unwrap(), None, &mut |_| {}).unwrap();
+        report.steps[0]
+    };
+    let half = "[motor.saturation]\ncurrent_a = [0.0, 10.0]\ninductance_share = [0.5, 0.5]\n";
+    let flat = rise(half, "control_period_s = 1e-6");
+    let given = {
+        let text = cancellation("", "").replace("inductance_h = 2.0e-3", "inductance_h = 1.0e-3");
+        let p = Params::from_toml(
+            &text
+                .replace("control_period_s = 2e-6", "control_period_s = 1e-6")
+                .replace("pwm_frequency_hz = 500000.0", "pwm_frequency_hz = 1000000.0"),
+            "t",
+        )
+        .unwrap();
+        host_sim::results::report::run(&p.build().unwrap(), None, &mut |_| {})
+            .unwrap()
+            .1
+            .steps[0]
+    };
+    assert_eq!(flat, given);
+    let flat = flat.rise_time_s.unwrap();
+    assert!(
+        (flat / analytic_rise(1.0e-3) - 1.0).abs() < 0.02,
+        "{flat} against {}",
+        analytic_rise(1.0e-3)
+    );
+    let rise = |motor: &str| rise(motor, "control_period_s = 2e-6").rise_time_s.unwrap();
+    let none = rise("");
+    let knee = rise("[motor.saturation]\ncurrent_a = [0.0, 0.5, 1.0]\ninductance_share = [1.0, 1.0, 0.6]\n");
+    eprintln!(
+        "rise: {:.1} us unsaturated, {:.1} us with the knee, {:.1} us at half",
+        none * 1e6,
+        knee * 1e6,
+        flat * 1e6
+    );
+    assert!(knee < 0.97 * none && knee > analytic_rise(1.2e-3), "{knee}");
+    // A bad curve is refused by name.
+    let e = Params::from_toml(
+        &cancellation(
+            "[motor.saturation]\ncurrent_a = [0.0, 2.0, 1.0]\ninductance_share = [1.0, 0.8, 0.6]\n",
+            "",
+        ),
+        "t",
+    )
+    .unwrap_err()
+    .to_string();
+    assert!(
+        e.starts_with("motor.saturation.current_a = 1 must be rising currents"),
+        "{e}"
+    );
 }

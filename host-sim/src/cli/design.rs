@@ -57,6 +57,15 @@ pub struct DesignArgs {
     /// for a review.
     #[arg(long)]
     pub report: bool,
+    /// Run every method's gains over the scenario's `[tolerances]` and
+    /// choose by the worst case (the highest yield, then the shortest worst
+    /// settling): each method's yield is shown.
+    #[arg(long)]
+    pub tolerances: bool,
+    /// Monte-Carlo boards per method with --tolerances (default:
+    /// tolerances.runs).
+    #[arg(long)]
+    pub runs: Option<u64>,
 }
 
 impl DesignArgs {
@@ -79,12 +88,30 @@ impl DesignArgs {
 /// meets it strictly (the table says what each misses and the nearest
 /// feasible spec), 2 bad input or an output that could not be written.
 pub fn run(args: &DesignArgs) -> i32 {
-    let report = match Params::load(&args.scenario).and_then(|p| prepare::design(&p, &args.overrides())) {
+    let params = match Params::load(&args.scenario) {
+        Ok(p) => p,
+        Err(e) => {
+            eprintln!("ampwright: {e}");
+            return 2;
+        }
+    };
+    let report = match prepare::design(&params, &args.overrides()) {
         Ok(r) => r,
         Err(e) => {
             eprintln!("ampwright: {e}");
             return 2;
         }
+    };
+    let over_tolerances = if args.tolerances {
+        match tolerance_table(args, &params, &report) {
+            Ok(t) => Some(t),
+            Err(e) => {
+                eprintln!("ampwright: {e}");
+                return 2;
+            }
+        }
+    } else {
+        None
     };
     let written = match write_files(args, &report) {
         Ok(w) => w,
@@ -95,9 +122,20 @@ pub fn run(args: &DesignArgs) -> i32 {
     };
     let mut out = std::io::stdout().lock();
     let text = if args.json {
-        report.json()
+        match &over_tolerances {
+            Some((_, json)) => {
+                let design: serde_json::Value = serde_json::from_str(&report.json()).unwrap_or_default();
+                serde_json::to_string_pretty(&serde_json::json!({"design": design, "tolerances": json}))
+                    .unwrap_or_default()
+            }
+            None => report.json(),
+        }
     } else {
         let mut t = report.table();
+        if let Some((table, _)) = &over_tolerances {
+            t.push('\n');
+            t.push_str(table);
+        }
         for w in &written {
             t.push_str(&format!("wrote {w}\n"));
         }
@@ -151,4 +189,43 @@ fn write_files(args: &DesignArgs, report: &DesignReport) -> Result<Vec<String>, 
         )?;
     }
     Ok(written)
+}
+
+/// Every method's gains over the tolerances: the table and its JSON.
+fn tolerance_table(
+    args: &DesignArgs,
+    params: &Params,
+    report: &DesignReport,
+) -> Result<(String, serde_json::Value), String> {
+    use crate::sweep::methods::{choose, method_yields, table};
+    let overridden = args.overrides().apply(params).map_err(|e| e.to_string())?;
+    let weight = overridden.controller.setpoint_weight;
+    let n = crate::sweep::Nominal::new(overridden).map_err(|e| e.to_string())?;
+    let runs = args.runs.unwrap_or(n.tolerances.runs as u64);
+    if !(1..=crate::scenario::tolerances::MAX_RUNS as u64).contains(&runs) {
+        return Err(format!(
+            "--runs = {runs} must be from 1 to {}",
+            crate::scenario::tolerances::MAX_RUNS
+        ));
+    }
+    let yields = method_yields(&n, report, runs, weight, &|| {});
+    let chosen = choose(&yields);
+    let json = serde_json::json!(
+        yields
+            .iter()
+            .enumerate()
+            .map(|(k, m)| serde_json::json!({
+                "method": m.method,
+                "kp_v_per_a": m.gains.0,
+                "ti_s": m.gains.1,
+                "setpoint_weight": m.gains.2,
+                "runs": m.reduced.runs,
+                "passed": m.reduced.passed,
+                "yield": m.reduced.yield_fraction(),
+                "yield_interval_95": [m.reduced.interval.0, m.reduced.interval.1],
+                "chosen_by_worst_case": Some(k) == chosen,
+            }))
+            .collect::<Vec<_>>()
+    );
+    Ok((table(&yields, chosen, runs), json))
 }

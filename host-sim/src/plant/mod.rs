@@ -21,5 +21,6 @@ pub mod faults;
 pub mod linear;
 pub mod motor;
 pub mod noise;
+pub mod saturation;
 pub mod sense_chain;
 pub mod timing;

@@ -31,6 +31,7 @@
 
 use crate::model_error::ModelError;
 use crate::plant::linear::{Discrete, Recent};
+pub use crate::plant::saturation::{SATURATION_POINTS, Saturation};
 
 /// Temperature coefficient of resistance of annealed copper at 20 C, 1/K:
 /// 0.00393 (the International Annealed Copper Standard, IEC 60028; value cited
@@ -80,6 +81,9 @@ pub struct MotorParams {
     pub locked_rotor: bool,
     /// Copper heating; `None` keeps the resistance at its 20 C value.
     pub thermal: Option<WindingThermal>,
+    /// The iron's saturation: the inductance falls with the current.
+    /// `None`: `inductance_h` at every current.
+    pub saturation: Option<Saturation>,
 }
 
 impl MotorParams {
@@ -95,6 +99,7 @@ impl MotorParams {
             coulomb_n_m: 0.0,
             locked_rotor: true,
             thermal: None,
+            saturation: None,
         }
     }
 
@@ -136,7 +141,7 @@ pub struct Motor {
     resistance_ohm: f64,
     heat_acc_a2s: f64,
     heat_time_s: f64,
-    cache: Recent<(u64, u64, bool), Discrete<2, 2>, 4>,
+    cache: Recent<(u64, u64, u64, bool), Discrete<2, 2>, 4>,
     /// Discretise through the augmented 4 x 4 exponential (tests compare).
     augmented: bool,
 }
@@ -183,14 +188,24 @@ impl Motor {
     }
 
     fn discrete(&mut self, dt_s: f64, locked: bool) -> &Discrete<2, 2> {
-        let key = (dt_s.to_bits(), self.resistance_ohm.to_bits(), locked);
+        let l = match &self.params.saturation {
+            Some(s) => self.params.inductance_h * s.share(self.current_a),
+            None => self.params.inductance_h,
+        };
+        let key = (dt_s.to_bits(), self.resistance_ohm.to_bits(), l.to_bits(), locked);
         let (p, r, augmented) = (self.params, self.resistance_ohm, self.augmented);
         self.cache
-            .get(key, || Self::discretise(&p, r, dt_s, locked, augmented))
+            .get(key, || Self::discretise(&p, r, l, dt_s, locked, augmented))
     }
 
-    fn discretise(p: &MotorParams, r: f64, dt_s: f64, locked: bool, augmented: bool) -> Discrete<2, 2> {
-        let l = p.inductance_h;
+    fn discretise(
+        p: &MotorParams,
+        r: f64,
+        l: f64,
+        dt_s: f64,
+        locked: bool,
+        augmented: bool,
+    ) -> Discrete<2, 2> {
         // x = [i, w], u = [v, tau_ext] with tau_ext the sum of friction and load
         // torques (signed), so the friction sign is decided per interval.
         let (a, b) = if locked {

@@ -16,7 +16,7 @@ use super::params::{
 use crate::model_error::ModelError;
 use crate::plant::bridge::{BridgeParams, Decay, Modulation, SwitchDrop};
 use crate::plant::faults::{FaultKind, Injection};
-use crate::plant::motor::{MotorParams, WindingThermal};
+use crate::plant::motor::{MotorParams, Saturation, WindingThermal};
 use crate::plant::sense_chain::{SenseFilter, SenseParams};
 use crate::plant::timing::TimingParams;
 use crate::spec::{Expectations, Spec};
@@ -56,6 +56,26 @@ pub(super) fn from_file(f: File, fallback_name: &str) -> Result<Params, Scenario
             capacitance_j_per_k: t.capacitance_j_per_k,
             initial_c: t.initial_c.unwrap_or(t.ambient_c),
         }),
+        saturation: match &m.saturation {
+            None => None,
+            Some(sat) => {
+                if sat.current_a.len() != sat.inductance_share.len() {
+                    return Err(ModelError::new(
+                        "motor.saturation.inductance_share",
+                        format!("{} values", sat.inductance_share.len()),
+                        format!("one value per current ({})", sat.current_a.len()),
+                    )
+                    .into());
+                }
+                let points: Vec<(f64, f64)> = sat
+                    .current_a
+                    .iter()
+                    .copied()
+                    .zip(sat.inductance_share.iter().copied())
+                    .collect();
+                Some(Saturation::new(&points)?)
+            }
+        },
     };
     let b = &f.bridge;
     let switch = match (b.rds_on_ohm, b.switch_drop_v) {

@@ -157,6 +157,15 @@ pub(super) struct MotorSection {
     #[serde(default)]
     pub(super) locked_rotor: bool,
     pub(super) thermal: Option<ThermalSection>,
+    pub(super) saturation: Option<SaturationSection>,
+}
+
+/// The inductance's fall with current.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub(super) struct SaturationSection {
+    pub(super) current_a: Vec<f64>,
+    pub(super) inductance_share: Vec<f64>,
 }
 
 #[derive(Debug, Deserialize)]

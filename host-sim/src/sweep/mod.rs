@@ -21,6 +21,7 @@ use crate::scenario::Params;
 use crate::scenario::tolerances::{Field, Tolerances};
 use crate::tuning::{self, LoopFigures};
 
+pub mod methods;
 pub mod reduce;
 pub mod report;
 pub mod worst;
