@@ -291,20 +291,23 @@ impl<const N: usize> Capture<N> {
 
     #[inline(never)]
     fn wait(&mut self, cl: &CurrentLoop, input: &TickInput) {
-        let current_a = cl.last_current_a();
         let fire = match self.spec.trigger {
             Trigger::Immediate => true,
             Trigger::SetpointChange => cl.target_a() != self.armed_target_a,
             Trigger::Excitation => cl.state() == LoopState::Exciting,
+            // Only a level needs the last reading: the other triggers leave
+            // it alone (one load and one store fewer while they wait).
             Trigger::Level { level_a, rising } => {
-                if rising {
+                let current_a = cl.last_current_a();
+                let crossed = if rising {
                     self.last_current_a < level_a && current_a >= level_a
                 } else {
                     self.last_current_a > level_a && current_a <= level_a
-                }
+                };
+                self.last_current_a = current_a;
+                crossed
             }
         };
-        self.last_current_a = current_a;
         if fire {
             self.state = CaptureState::Filling;
             self.countdown = 0;
