@@ -465,3 +465,37 @@ fn a_saturating_winding_rises_as_its_lower_inductance_says() {
         "{e}"
     );
 }
+
+#[test]
+fn the_command_exits_1_under_the_minimum_yield_and_writes_its_files() {
+    let dir = ampwright_tests::temp_dir("sweep-command");
+    let scenario =
+        std::path::PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("../host-sim/scenarios/carousel_step.toml");
+    let run = |extra: &[&str]| {
+        let mut args = vec![
+            "ampwright",
+            "sweep",
+            scenario.to_str().unwrap(),
+            "--runs",
+            "40",
+            "--quiet",
+        ];
+        args.extend_from_slice(extra);
+        args.extend(["--out", dir.to_str().unwrap()]);
+        host_sim::cli::main(args.iter().map(Into::into))
+    };
+    // The demo's yield is about a third.
+    assert_eq!(run(&["--min-yield-pct", "90"]), 1);
+    assert_eq!(run(&["--min-yield-pct", "5"]), 0);
+    assert_eq!(run(&["--min-yield-pct", "150"]), 2);
+    let csv = std::fs::read_to_string(dir.join("carousel-step-sweep.csv")).unwrap();
+    assert_eq!(csv.lines().count(), 41, "a header and one line a run");
+    for m in Metric::ALL {
+        assert!(
+            dir.join(format!("carousel-step-worst-{}.toml", m.name()))
+                .exists(),
+            "{}",
+            m.name()
+        );
+    }
+}
