@@ -279,6 +279,19 @@ impl<const N: usize> Capture<N> {
         self.samples.get(..n).unwrap_or(&[])
     }
 
+    /// Copies the samples from index `first` on into `out` (as many as fit);
+    /// returns how many: what [`crate::link::Board::read_capture`] asks of a
+    /// firmware.
+    pub fn read(&self, first: usize, out: &mut [Sample]) -> usize {
+        let kept = self.samples().get(first..).unwrap_or(&[]);
+        let mut n = 0;
+        for (o, s) in out.iter_mut().zip(kept) {
+            *o = *s;
+            n += 1;
+        }
+        n
+    }
+
     /// One tick, from the control interrupt, after `cl.tick(input)`.
     #[inline]
     pub fn record(&mut self, cl: &CurrentLoop, input: &TickInput) {

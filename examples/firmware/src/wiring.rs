@@ -155,16 +155,7 @@ impl<P, D, E, S> Board for Shared2Board<'_, P, D, E, S> {
             .unwrap_or((CaptureState::Idle, 0, self.start.spec))
     }
     fn read_capture(&mut self, first: usize, out: &mut [Sample]) -> usize {
-        self.with(|_, capture| {
-            let kept = capture.samples().get(first..).unwrap_or(&[]);
-            let mut n = 0;
-            for (o, s) in out.iter_mut().zip(kept) {
-                *o = *s;
-                n += 1;
-            }
-            n
-        })
-        .unwrap_or(0)
+        self.with(|_, capture| capture.read(first, out)).unwrap_or(0)
     }
 }
 

@@ -57,6 +57,16 @@ pub struct BoardGains {
     pub setpoint_weight: f64,
 }
 
+impl BoardGains {
+    fn from_wire(kp_v_per_a: f32, ti_s: f32, setpoint_weight: f32) -> Self {
+        Self {
+            kp_v_per_a: kp_v_per_a as f64,
+            ti_s: ti_s as f64,
+            setpoint_weight: setpoint_weight as f64,
+        }
+    }
+}
+
 /// R and L the board identified itself, with standard deviations.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct BoardEstimate {
@@ -232,11 +242,7 @@ impl<P: Read + Write> BoardLink<P> {
                 kp_v_per_a,
                 ti_s,
                 setpoint_weight,
-            } => Ok(BoardGains {
-                kp_v_per_a: kp_v_per_a as f64,
-                ti_s: ti_s as f64,
-                setpoint_weight: setpoint_weight as f64,
-            }),
+            } => Ok(BoardGains::from_wire(kp_v_per_a, ti_s, setpoint_weight)),
             other => Err(refused(&Request::ReadGains, &other)),
         }
     }
@@ -270,11 +276,7 @@ impl<P: Read + Write> BoardLink<P> {
                 kp_v_per_a,
                 ti_s,
                 setpoint_weight,
-            } => Ok(BoardGains {
-                kp_v_per_a: kp_v_per_a as f64,
-                ti_s: ti_s as f64,
-                setpoint_weight: setpoint_weight as f64,
-            }),
+            } => Ok(BoardGains::from_wire(kp_v_per_a, ti_s, setpoint_weight)),
             Reply::DesignRefused {
                 reason,
                 field,
