@@ -11,7 +11,7 @@
 use pi_core::capture::{Capture, CaptureSpec, CaptureState, Sample};
 use pi_core::link::frame::{FrameDecoder, MAX_FRAME, MAX_PAYLOAD, crc16, encode, parse};
 use pi_core::link::{
-    Board, Link, Reply, ReplyFrame, Request, RequestFrame, TriggerWire, VERSION, WaveformWire,
+    Board, Link, MethodWire, Reply, ReplyFrame, Request, RequestFrame, TriggerWire, VERSION, WaveformWire,
 };
 use pi_core::prelude::*;
 use pi_core::{ConfigError, LoopStatus};
@@ -140,7 +140,7 @@ impl Board for FuzzBoard {
 }
 
 fn random_request(rng: &mut Rng) -> Request {
-    match rng.below(14) {
+    match rng.below(16) {
         0 => Request::Hello,
         1 => Request::Status,
         2 => Request::Enable,
@@ -190,6 +190,23 @@ fn random_request(rng: &mut Rng) -> Request {
             },
             duration_ticks: rng.u16() as u32,
             current_limit_a: rng.f32(),
+        },
+        12 => Request::Design {
+            method: match rng.below(4) {
+                0 => MethodWire::DirectDiscrete,
+                1 => MethodWire::RootLocus,
+                2 => MethodWire::ModulusOptimum,
+                _ => MethodWire::Cancellation,
+            },
+            resistance_ohm: rng.f32(),
+            inductance_h: rng.f32() * 1e-3,
+            settling_time_s: rng.f32() * 1e-2,
+            overshoot_pct: rng.f32() * 10.0,
+            rise_time_s: rng.f32() * 1e-3,
+            delay_periods: rng.f32(),
+        },
+        13 => Request::IdentifyCapture {
+            delay_samples: rng.below(12) as u8,
         },
         _ => Request::ReadCapture { first: rng.u16() },
     }
