@@ -76,6 +76,52 @@
 use crate::error::{ConfigError, Requirement, finite, non_negative, positive, within};
 use crate::num::clamp;
 
+/// The numbers the control law runs on: `f32` on a core with an FPU. The
+/// law ([`Law`]) is written once over this trait, so another arithmetic
+/// (fixed point for cores without an FPU) runs the same law.
+pub(crate) trait Arithmetic: Copy + PartialOrd {
+    /// A coefficient that multiplies a value (a gain, a tracking rate).
+    type Coefficient: Copy + core::fmt::Debug + PartialEq;
+    /// Zero.
+    const ZERO: Self;
+    /// `self + other`.
+    fn plus(self, other: Self) -> Self;
+    /// `self - other`.
+    fn minus(self, other: Self) -> Self;
+    /// `k * self`.
+    fn times(self, k: Self::Coefficient) -> Self;
+    /// Whether the value is no number (an f32 NaN); an arithmetic without
+    /// such values says `false`.
+    fn is_bad(self) -> bool;
+    /// `self` limited to `[lo, hi]` (`lo <= hi`), without a panic path.
+    fn limited(self, lo: Self, hi: Self) -> Self;
+}
+
+impl Arithmetic for f32 {
+    type Coefficient = f32;
+    const ZERO: f32 = 0.0;
+    #[inline(always)]
+    fn plus(self, other: f32) -> f32 {
+        self + other
+    }
+    #[inline(always)]
+    fn minus(self, other: f32) -> f32 {
+        self - other
+    }
+    #[inline(always)]
+    fn times(self, k: f32) -> f32 {
+        k * self
+    }
+    #[inline(always)]
+    fn is_bad(self) -> bool {
+        self.is_nan()
+    }
+    #[inline(always)]
+    fn limited(self, lo: f32, hi: f32) -> f32 {
+        clamp(self, lo, hi)
+    }
+}
+
 /// How the integral is discretised.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Default)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
@@ -348,17 +394,25 @@ impl PiConfig {
 
 /// Coefficients precomputed from a configuration so the update is multiply-adds.
 #[derive(Clone, Copy, Debug, PartialEq)]
-struct Coefficients {
+struct Coefficients<K = f32> {
     /// `Kp`.
-    kp: f32,
+    kp: K,
     /// `Kp * b`.
-    kp_b: f32,
+    kp_b: K,
     /// `Kp * (1 - b)`.
-    kp_unweighted: f32,
+    kp_unweighted: K,
     /// `Ki Ts` (backward Euler) or `Ki Ts / 2` (Tustin).
-    ki_step: f32,
+    ki_step: K,
     /// `Ts / Tt` for back-calculation, unused for clamping.
-    tracking: f32,
+    tracking: K,
+}
+
+impl<K: Copy> Coefficients<K> {
+    /// The proportional part `Kp (b r - y)`, volts.
+    #[inline(always)]
+    fn proportional<A: Arithmetic<Coefficient = K>>(&self, setpoint_a: A, measured_a: A) -> A {
+        setpoint_a.times(self.kp_b).minus(measured_a.times(self.kp))
+    }
 }
 
 impl Coefficients {
@@ -381,12 +435,6 @@ impl Coefficients {
             tracking,
         }
     }
-
-    /// The proportional part `Kp (b r - y)`, volts.
-    #[inline(always)]
-    fn proportional(&self, setpoint_a: f32, measured_a: f32) -> f32 {
-        self.kp_b * setpoint_a - self.kp * measured_a
-    }
 }
 
 /// Which update path a controller takes; any bit set leaves the common path
@@ -400,19 +448,149 @@ mod path {
     pub const RETUNE: u8 = 4;
 }
 
+/// The control law and its state, written once over an [`Arithmetic`]: the
+/// float controller ([`PiController`]) runs it on `f32`.
+#[derive(Clone, Copy, Debug, PartialEq)]
+struct Law<A: Arithmetic> {
+    k: Coefficients<A::Coefficient>,
+    integrator: A,
+    /// The last update's unlimited output `P + I`; above the output it
+    /// saturated high, below it saturated low.
+    demand: A,
+    output: A,
+    prev_error: A,
+}
+
+impl<A: Arithmetic> Law<A> {
+    /// At rest with coefficients `k`.
+    fn new(k: Coefficients<A::Coefficient>) -> Self {
+        Self {
+            k,
+            integrator: A::ZERO,
+            demand: A::ZERO,
+            output: A::ZERO,
+            prev_error: A::ZERO,
+        }
+    }
+
+    /// The control law, one body for every rule and anti-windup scheme (the
+    /// choices are compile-time here, so the common path carries none of the others).
+    #[inline(always)]
+    fn law<const TUSTIN: bool, const CLAMPING: bool>(
+        &mut self,
+        setpoint_a: A,
+        measured_a: A,
+        lo: A,
+        hi: A,
+    ) -> A {
+        let k = self.k;
+        let e = setpoint_a.minus(measured_a);
+        let p = k.proportional(setpoint_a, measured_a);
+        let step = if TUSTIN {
+            e.plus(self.prev_error).times(k.ki_step)
+        } else {
+            e.times(k.ki_step)
+        };
+        let candidate = self.integrator.plus(step);
+        // `e - e` is 0 for a finite error and NaN otherwise, so a NaN or
+        // infinite input (or an overflowing error) makes the demand NaN.
+        let demand = p.plus(candidate).plus(e.minus(e));
+        // Three outcomes from two comparisons: a NaN fails `<=` and joins the
+        // high side, where it is sorted out.
+        #[allow(clippy::neg_cmp_op_on_partial_ord)]
+        if !(demand <= hi) {
+            if demand.is_bad() {
+                return self.refuse();
+            }
+            let (u, i) = self.saturated::<CLAMPING>(demand, candidate, step, p, hi, lo, setpoint_a, true);
+            self.commit::<TUSTIN>(e, i, demand, u)
+        } else if demand >= lo {
+            // Inside the limits the loop is linear: the integrator is exactly
+            // `u - P`, so a retune is bumpless.
+            self.commit::<TUSTIN>(e, candidate, demand, demand)
+        } else {
+            let (u, i) = self.saturated::<CLAMPING>(demand, candidate, step, p, lo, hi, setpoint_a, false);
+            self.commit::<TUSTIN>(e, i, demand, u)
+        }
+    }
+
+    /// Stores the step's state and returns its output.
+    #[inline(always)]
+    fn commit<const TUSTIN: bool>(&mut self, e: A, integrator: A, demand: A, output: A) -> A {
+        if TUSTIN {
+            self.prev_error = e;
+        }
+        self.integrator = integrator;
+        self.demand = demand;
+        self.output = output;
+        output
+    }
+
+    /// The output and integrator of a saturated step, written once for both sides:
+    /// `limit` is the one the demand went past, `other` the opposite one, `high`
+    /// says which side.
+    ///
+    /// The integrator is held on the far side of the range the output needs at
+    /// steady state for this setpoint, `[lo, hi] + Kp (1 - b) r` (with a setpoint
+    /// weight b < 1 the weighted proportional part keeps `-Kp (1 - b) r` at steady
+    /// state, which the integrator must make up): saturated high it stays at or
+    /// above `lo + Kp (1 - b) r`, where back-calculation would otherwise take it
+    /// when the proportional part alone spans more than the range. On the near
+    /// side, back-calculation pulls it toward the limit with time constant `Tt`.
+    /// Clamping holds it inside both edges, as it has no pull of its own.
+    #[allow(clippy::too_many_arguments)]
+    #[inline(always)]
+    fn saturated<const CLAMPING: bool>(
+        &self,
+        demand: A,
+        candidate: A,
+        step: A,
+        p: A,
+        limit: A,
+        other: A,
+        setpoint_a: A,
+        high: bool,
+    ) -> (A, A) {
+        let offset = setpoint_a.times(self.k.kp_unweighted);
+        if CLAMPING {
+            // Skip the integral step when it pushes further into the limit.
+            let pushing = if high { step > A::ZERO } else { step < A::ZERO };
+            let held = if pushing { self.integrator } else { candidate };
+            let (lo, hi) = if high { (other, limit) } else { (limit, other) };
+            (
+                p.plus(held).limited(lo, hi),
+                held.limited(lo.plus(offset), hi.plus(offset)),
+            )
+        } else {
+            let tracked = candidate.plus(limit.minus(demand).times(self.k.tracking));
+            let edge = other.plus(offset);
+            let held = if high {
+                if tracked >= edge { tracked } else { edge }
+            } else if tracked <= edge {
+                tracked
+            } else {
+                edge
+            };
+            (limit, held)
+        }
+    }
+
+    /// The bad-input reaction: zero output, integrator untouched.
+    #[inline(always)]
+    fn refuse(&mut self) -> A {
+        self.demand = A::ZERO;
+        self.output = A::ZERO;
+        A::ZERO
+    }
+}
+
 /// The PI controller with its state.
 #[derive(Clone, Debug)]
 pub struct PiController {
-    k: Coefficients,
+    law: Law<f32>,
     /// The configured output limits, copied here for the update.
     min_v: f32,
     max_v: f32,
-    integrator_v: f32,
-    /// The last update's unlimited output `P + I`; above the output it saturated
-    /// high, below it saturated low.
-    demand_v: f32,
-    output_v: f32,
-    prev_error_a: f32,
     path: u8,
     config: PiConfig,
 }
@@ -428,13 +606,9 @@ impl PiController {
             path |= path::CLAMPING;
         }
         Self {
-            k: Coefficients::from_config(&config),
+            law: Law::new(Coefficients::from_config(&config)),
             min_v: config.limits.min_v,
             max_v: config.limits.max_v,
-            integrator_v: 0.0,
-            demand_v: 0.0,
-            output_v: 0.0,
-            prev_error_a: 0.0,
             path,
             config,
         }
@@ -480,7 +654,7 @@ impl PiController {
     #[inline(always)]
     fn step(&mut self, setpoint_a: f32, measured_a: f32, lo: f32, hi: f32) -> f32 {
         if self.path == 0 {
-            self.law::<false, false>(setpoint_a, measured_a, lo, hi)
+            self.law.law::<false, false>(setpoint_a, measured_a, lo, hi)
         } else {
             self.step_general(setpoint_a, measured_a, lo, hi)
         }
@@ -494,119 +668,17 @@ impl PiController {
             return self.refuse();
         }
         match (self.path & path::TUSTIN != 0, self.path & path::CLAMPING != 0) {
-            (false, false) => self.law::<false, false>(setpoint_a, measured_a, lo, hi),
-            (false, true) => self.law::<false, true>(setpoint_a, measured_a, lo, hi),
-            (true, false) => self.law::<true, false>(setpoint_a, measured_a, lo, hi),
-            (true, true) => self.law::<true, true>(setpoint_a, measured_a, lo, hi),
-        }
-    }
-
-    /// The control law, one body for every rule and anti-windup scheme (the
-    /// choices are compile-time here, so the common path carries none of the others).
-    #[inline(always)]
-    fn law<const TUSTIN: bool, const CLAMPING: bool>(
-        &mut self,
-        setpoint_a: f32,
-        measured_a: f32,
-        lo: f32,
-        hi: f32,
-    ) -> f32 {
-        let k = self.k;
-        let e = setpoint_a - measured_a;
-        let p = k.proportional(setpoint_a, measured_a);
-        let step = if TUSTIN {
-            k.ki_step * (e + self.prev_error_a)
-        } else {
-            k.ki_step * e
-        };
-        let candidate = self.integrator_v + step;
-        // `e - e` is 0 for a finite error and NaN otherwise, so a NaN or
-        // infinite input (or an overflowing error) makes the demand NaN.
-        #[allow(clippy::eq_op)]
-        let demand = (p + candidate) + (e - e);
-        // Three outcomes from two comparisons: a NaN fails `<=` and joins the
-        // high side, where it is sorted out.
-        #[allow(clippy::neg_cmp_op_on_partial_ord)]
-        if !(demand <= hi) {
-            if demand.is_nan() {
-                return self.refuse();
-            }
-            let (u, i) = self.saturated::<CLAMPING>(demand, candidate, step, p, hi, lo, setpoint_a, true);
-            self.commit::<TUSTIN>(e, i, demand, u)
-        } else if demand >= lo {
-            // Inside the limits the loop is linear: the integrator is exactly
-            // `u - P`, so a retune is bumpless.
-            self.commit::<TUSTIN>(e, candidate, demand, demand)
-        } else {
-            let (u, i) = self.saturated::<CLAMPING>(demand, candidate, step, p, lo, hi, setpoint_a, false);
-            self.commit::<TUSTIN>(e, i, demand, u)
-        }
-    }
-
-    /// Stores the step's state and returns its output.
-    #[inline(always)]
-    fn commit<const TUSTIN: bool>(&mut self, e: f32, integrator: f32, demand: f32, output: f32) -> f32 {
-        if TUSTIN {
-            self.prev_error_a = e;
-        }
-        self.integrator_v = integrator;
-        self.demand_v = demand;
-        self.output_v = output;
-        output
-    }
-
-    /// The output and integrator of a saturated step, written once for both sides:
-    /// `limit` is the one the demand went past, `other` the opposite one, `high`
-    /// says which side.
-    ///
-    /// The integrator is held on the far side of the range the output needs at
-    /// steady state for this setpoint, `[lo, hi] + Kp (1 - b) r` (with a setpoint
-    /// weight b < 1 the weighted proportional part keeps `-Kp (1 - b) r` at steady
-    /// state, which the integrator must make up): saturated high it stays at or
-    /// above `lo + Kp (1 - b) r`, where back-calculation would otherwise take it
-    /// when the proportional part alone spans more than the range. On the near
-    /// side, back-calculation pulls it toward the limit with time constant `Tt`.
-    /// Clamping holds it inside both edges, as it has no pull of its own.
-    #[allow(clippy::too_many_arguments)]
-    #[inline(always)]
-    fn saturated<const CLAMPING: bool>(
-        &self,
-        demand: f32,
-        candidate: f32,
-        step: f32,
-        p: f32,
-        limit: f32,
-        other: f32,
-        setpoint_a: f32,
-        high: bool,
-    ) -> (f32, f32) {
-        let offset = self.k.kp_unweighted * setpoint_a;
-        if CLAMPING {
-            // Skip the integral step when it pushes further into the limit.
-            let pushing = if high { step > 0.0 } else { step < 0.0 };
-            let held = if pushing { self.integrator_v } else { candidate };
-            let (lo, hi) = if high { (other, limit) } else { (limit, other) };
-            (clamp(p + held, lo, hi), clamp(held, lo + offset, hi + offset))
-        } else {
-            let tracked = candidate + self.k.tracking * (limit - demand);
-            let edge = other + offset;
-            let held = if high {
-                if tracked >= edge { tracked } else { edge }
-            } else if tracked <= edge {
-                tracked
-            } else {
-                edge
-            };
-            (limit, held)
+            (false, false) => self.law.law::<false, false>(setpoint_a, measured_a, lo, hi),
+            (false, true) => self.law.law::<false, true>(setpoint_a, measured_a, lo, hi),
+            (true, false) => self.law.law::<true, false>(setpoint_a, measured_a, lo, hi),
+            (true, true) => self.law.law::<true, true>(setpoint_a, measured_a, lo, hi),
         }
     }
 
     /// The bad-input reaction: 0 V, integrator untouched.
     #[inline(always)]
     fn refuse(&mut self) -> f32 {
-        self.demand_v = 0.0;
-        self.output_v = 0.0;
-        0.0
+        self.law.refuse()
     }
 
     /// Installs the configured gains, moving the integrator by the change of the
@@ -614,17 +686,18 @@ impl PiController {
     /// nothing changed) when that change is not finite.
     fn hand_over(&mut self, setpoint_a: f32, measured_a: f32) -> bool {
         let new = Coefficients::from_config(&self.config);
-        let shift = self.k.proportional(setpoint_a, measured_a) - new.proportional(setpoint_a, measured_a);
+        let shift =
+            self.law.k.proportional(setpoint_a, measured_a) - new.proportional(setpoint_a, measured_a);
         if !shift.is_finite() {
             return false;
         }
-        self.integrator_v += shift;
+        self.law.integrator += shift;
         self.install(new);
         true
     }
 
     fn install(&mut self, k: Coefficients) {
-        self.k = k;
+        self.law.k = k;
         self.path &= !path::RETUNE;
     }
 
@@ -667,12 +740,12 @@ impl PiController {
         let r = finite("setpoint_a", setpoint_a)?;
         let y = finite("measured_a", measured_a)?;
         self.install_waiting();
-        let p = self.k.proportional(r, y);
-        let offset = self.k.kp_unweighted * r;
-        self.integrator_v = clamp(u - p, l.min_v + offset, l.max_v + offset);
-        self.prev_error_a = r - y;
-        self.demand_v = u;
-        self.output_v = u;
+        let p = self.law.k.proportional(r, y);
+        let offset = self.law.k.kp_unweighted * r;
+        self.law.integrator = clamp(u - p, l.min_v + offset, l.max_v + offset);
+        self.law.prev_error = r - y;
+        self.law.demand = u;
+        self.law.output = u;
         Ok(())
     }
 
@@ -680,34 +753,34 @@ impl PiController {
     /// waiting from a retune take effect here.
     pub fn reset(&mut self) {
         self.install_waiting();
-        self.integrator_v = 0.0;
-        self.prev_error_a = 0.0;
-        self.demand_v = 0.0;
-        self.output_v = 0.0;
+        self.law.integrator = 0.0;
+        self.law.prev_error = 0.0;
+        self.law.demand = 0.0;
+        self.law.output = 0.0;
     }
 
     /// Integrator state in volts. After an unsaturated update it is `u - P`;
     /// after a saturated one it lies on the limit's side of the output range
     /// shifted by `Kp (1 - b) r` (see [`AntiWindup`]).
     pub fn integrator_v(&self) -> f32 {
-        self.integrator_v
+        self.law.integrator
     }
 
     /// The output of the last update in volts (0 after a refused input).
     pub fn last_output_v(&self) -> f32 {
-        self.output_v
+        self.law.output
     }
 
     /// The last update's unlimited output `P + I` in volts, before the limits.
     pub fn last_demand_v(&self) -> f32 {
-        self.demand_v
+        self.law.demand
     }
 
     /// Whether the last update saturated (its unlimited output was beyond a limit).
     pub fn saturation(&self) -> Saturation {
-        if self.demand_v > self.output_v {
+        if self.law.demand > self.law.output {
             Saturation::High
-        } else if self.demand_v < self.output_v {
+        } else if self.law.demand < self.law.output {
             Saturation::Low
         } else {
             Saturation::None
