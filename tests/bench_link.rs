@@ -183,6 +183,25 @@ fn the_board_commands_drive_nothing_without_energise_and_write_captures() {
     assert!(!out.join("board-step.csv").exists());
 
     let (path, done, server) = serve_on_pty(vb);
+    // A capture of the idle loop, and a design on the board written to it.
+    assert_eq!(
+        run(&path, &["capture", "--samples", "100", "--decimation", "2"]),
+        0
+    );
+    let idle = std::fs::read_to_string(out.join("board-capture.csv")).unwrap();
+    assert_eq!(idle.lines().count(), 101);
+    assert!(idle.lines().nth(1).unwrap().starts_with("0.000000000e0,"));
+    let design = [
+        "design",
+        "--resistance-ohm",
+        "2.05",
+        "--inductance-h",
+        "2.2e-3",
+        "--settling-time-s",
+        "2e-3",
+        "--write",
+    ];
+    assert_eq!(run(&path, &design), 0);
     assert_eq!(
         run(
             &path,
@@ -192,8 +211,11 @@ fn the_board_commands_drive_nothing_without_energise_and_write_captures() {
     );
     done.store(true, Ordering::Relaxed);
     let vb = server.join().unwrap();
-    // The step left the loop disabled.
+    // The step left the loop disabled, with the board's own design in use:
+    // pole-zero cancellation, Ti = L / R.
     assert_eq!(vb.firmware().current_loop().state(), pi_core::LoopState::Disabled);
+    let g = vb.firmware().current_loop().pi().config().gains();
+    assert!((g.ti_s() / (2.2e-3 / 2.05) - 1.0).abs() < 1e-5, "{g:?}");
     let csv = out.join("board-step.csv");
     let cap = host_sim::bench::capture::read(
         std::fs::File::open(&csv).unwrap(),
@@ -203,9 +225,15 @@ fn the_board_commands_drive_nothing_without_energise_and_write_captures() {
     .unwrap();
     let setpoint = cap.setpoint_a.clone().unwrap();
     assert_eq!((setpoint[0], *setpoint.last().unwrap()), (0.0, 1.5));
-    // The board ran the scenario's own gains on the sample: the simulation
-    // of the sample's scenario driven the same way agrees with it.
-    let sample = host_sim::prepare::load(&scenario("carousel_bench.toml")).unwrap();
+    // The simulation of the sample's scenario with the gains the board ran,
+    // driven the same way, agrees with it.
+    let mut sample = Params::load(&scenario("carousel_bench.toml")).unwrap();
+    sample.controller.gains = Some(host_sim::scenario::params::GainParams {
+        kp_v_per_a: g.kp_v_per_a() as f64,
+        ti_s: g.ti_s() as f64,
+    });
+    sample.controller.setpoint_weight = Some(g.setpoint_weight() as f64);
+    let sample = host_sim::prepare::prepare(sample).unwrap();
     let c = host_sim::results::compare::compare(&cap, Some(&setpoint), &sample.scenario).unwrap();
     assert!(c.nrmse < 0.05, "{}", c.nrmse);
     assert_eq!(c.steps.len(), 1);
