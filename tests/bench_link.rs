@@ -133,7 +133,6 @@ fn serve_on_pty(
 #[test]
 fn the_board_commands_drive_nothing_without_energise_and_write_captures() {
     use pi_core::capture::CaptureState;
-    use pi_core::link::Board;
     use std::sync::atomic::Ordering;
 
     let out = ampwright_tests::temp_dir("board_commands");
@@ -167,16 +166,16 @@ fn the_board_commands_drive_nothing_without_energise_and_write_captures() {
     );
     done.store(true, Ordering::Relaxed);
     let vb = server.join().unwrap();
-    let mut fw = vb.firmware().clone();
-    let s = fw.status();
+    let fw = vb.firmware();
+    let s = fw.current_loop().status();
     assert_eq!(
         (s.state, s.excitation_end, s.setpoint_a),
         (pi_core::LoopState::Disabled, None, 0.0)
     );
-    assert_eq!(fw.capture_progress().0, CaptureState::Idle, "never armed");
+    assert_eq!(fw.capture().state(), CaptureState::Idle, "never armed");
     assert_eq!(fw.refused(), 0);
     assert_eq!(
-        fw.gains().kp_v_per_a(),
+        fw.current_loop().pi().config().gains().kp_v_per_a(),
         12.06,
         "the refused gains changed nothing"
     );

@@ -9,7 +9,8 @@
 //! loop to the control interrupt. Its control tick (the runner calls it at
 //! each sampling instant) drains the queue, ticks the loop and records the
 //! capture, in that order, as the firmware example does; its main-loop side
-//! implements [`Board`] for pi-core's [`Link`].
+//! lends pi-core's [`Link`] the loop and the capture through a
+//! [`LoopBoard`].
 //!
 //! # Time
 //!
@@ -23,10 +24,10 @@
 use std::collections::VecDeque;
 use std::io::{self, Read, Write};
 
-use pi_core::capture::{Capture, CaptureSpec, CaptureState, Sample};
+use pi_core::capture::Capture;
 use pi_core::heapless::spsc::Queue;
-use pi_core::link::{Board, Link};
-use pi_core::{Command, CurrentLoop, DriveCommand, LoopStatus, PiGains, SetpointLimits, TickInput};
+use pi_core::link::{Link, LoopBoard};
+use pi_core::{Command, CurrentLoop, DriveCommand, TickInput};
 
 use crate::scenario::{Scenario, ScenarioError};
 use crate::sim::runner::{Controller, ControllerView, Measurement, Runner};
@@ -65,6 +66,21 @@ impl Firmware {
     pub fn refused(&self) -> u64 {
         self.refused
     }
+
+    /// The capture.
+    pub fn capture(&self) -> &Capture<CAPACITY> {
+        &self.capture
+    }
+
+    /// The main loop's view of it for the link handler.
+    fn board(&mut self) -> LoopBoard<'_, CAPACITY, impl FnMut(Command) -> bool + '_> {
+        let queue = &mut self.queue;
+        LoopBoard {
+            cl: &self.cl,
+            capture: &mut self.capture,
+            send: move |c| queue.enqueue(c).is_ok(),
+        }
+    }
 }
 
 impl Controller for Firmware {
@@ -90,41 +106,6 @@ impl Controller for Firmware {
 
     fn view(&self) -> ControllerView {
         Controller::view(&self.cl)
-    }
-}
-
-impl Board for Firmware {
-    fn send(&mut self, command: Command) -> bool {
-        self.queue.enqueue(command).is_ok()
-    }
-    fn status(&mut self) -> LoopStatus {
-        self.cl.status()
-    }
-    fn gains(&mut self) -> PiGains {
-        self.cl.pi().config().gains()
-    }
-    fn limits(&mut self) -> SetpointLimits {
-        *self.cl.config().setpoint()
-    }
-    fn period_s(&mut self) -> f32 {
-        self.cl.config().period_s()
-    }
-    fn capture_capacity(&mut self) -> usize {
-        self.capture.capacity()
-    }
-    fn arm_capture(&mut self, spec: CaptureSpec) -> Result<(), pi_core::ConfigError> {
-        let s = self.cl.status();
-        self.capture.arm(spec, s.target_a, s.current_a)
-    }
-    fn capture_progress(&mut self) -> (CaptureState, usize, CaptureSpec) {
-        (
-            self.capture.state(),
-            self.capture.samples().len(),
-            self.capture.spec(),
-        )
-    }
-    fn read_capture(&mut self, first: usize, out: &mut [Sample]) -> usize {
-        self.capture.read(first, out)
     }
 }
 
@@ -181,7 +162,7 @@ impl VirtualBoard {
 
     /// One byte from the host; the reply's bytes when it closes a frame.
     pub fn receive(&mut self, byte: u8) -> Option<Vec<u8>> {
-        let reply = self.link.receive(byte, &mut self.firmware)?.to_vec();
+        let reply = self.link.receive(byte, &mut self.firmware.board())?.to_vec();
         self.requests += 1;
         Some(reply)
     }

@@ -38,8 +38,8 @@ pub mod wire;
 
 pub use device::MAX_DELAY_SAMPLES;
 
-use crate::capture::{CaptureSpec, CaptureState, Sample, Trigger};
-use crate::current_loop::{Command, LoopState, LoopStatus};
+use crate::capture::{Capture, CaptureSpec, CaptureState, Sample, Trigger};
+use crate::current_loop::{Command, CurrentLoop, LoopState, LoopStatus};
 use crate::error::{ConfigError, Requirement};
 use crate::excitation::{Excitation, ExcitationEnd, Waveform};
 use crate::pi::PiGains;
@@ -72,6 +72,56 @@ pub trait Board {
     fn capture_progress(&mut self) -> (CaptureState, usize, CaptureSpec);
     /// Copies samples from index `first` into `out`; returns how many.
     fn read_capture(&mut self, first: usize, out: &mut [Sample]) -> usize;
+}
+
+/// A [`Board`] for a firmware that can lend the handler its loop and capture
+/// between two ticks (a single context, or one where the main loop holds
+/// them under a lock): every answer is read from them, and commands go to
+/// the interrupt through `send` (the handoff queue's producer, usually).
+/// A firmware that shares them across contexts writes its own [`Board`]
+/// (the firmware example reads them under a critical section).
+pub struct LoopBoard<'a, const N: usize, S: FnMut(Command) -> bool> {
+    /// The loop.
+    pub cl: &'a CurrentLoop,
+    /// Its capture.
+    pub capture: &'a mut Capture<N>,
+    /// Hands a command to the control interrupt; `false` when it cannot.
+    pub send: S,
+}
+
+impl<const N: usize, S: FnMut(Command) -> bool> Board for LoopBoard<'_, N, S> {
+    fn send(&mut self, command: Command) -> bool {
+        (self.send)(command)
+    }
+    fn status(&mut self) -> LoopStatus {
+        self.cl.status()
+    }
+    fn gains(&mut self) -> PiGains {
+        self.cl.pi().config().gains()
+    }
+    fn limits(&mut self) -> SetpointLimits {
+        *self.cl.config().setpoint()
+    }
+    fn period_s(&mut self) -> f32 {
+        self.cl.config().period_s()
+    }
+    fn capture_capacity(&mut self) -> usize {
+        N
+    }
+    fn arm_capture(&mut self, spec: CaptureSpec) -> Result<(), ConfigError> {
+        let s = self.cl.status();
+        self.capture.arm(spec, s.target_a, s.current_a)
+    }
+    fn capture_progress(&mut self) -> (CaptureState, usize, CaptureSpec) {
+        (
+            self.capture.state(),
+            self.capture.samples().len(),
+            self.capture.spec(),
+        )
+    }
+    fn read_capture(&mut self, first: usize, out: &mut [Sample]) -> usize {
+        self.capture.read(first, out)
+    }
 }
 
 /// The handler: a frame decoder and a reply buffer.

@@ -6,7 +6,7 @@
 //! hot start through the supervisor), the main loop (commands through the
 //! handoff queue (an excitation among them), telemetry, the on-device design of new gains), the control
 //! interrupt (`tick`, both HAL adapters, the capture), the bench link's
-//! handler fed opaque bytes in the main loop, and the bare PI, the supervisor, the
+//! handler fed opaque bytes in the main loop (over pi-core's `LoopBoard`), and the bare PI, the supervisor, the
 //! setpoint shaper and the duty mapping on their own. The panic
 //! handler calls a function that exists nowhere: if any panic remains reachable
 //! after optimisation, the link fails naming `control_path_reached_a_panic`.
@@ -22,11 +22,11 @@ use embedded_hal::digital::{ErrorKind as PinErrorKind, ErrorType as PinErrorType
 use embedded_hal::pwm::{ErrorKind as PwmErrorKind, ErrorType as PwmErrorType, SetDutyCycle};
 use pi_core::design::{RlPlant, Sampling, Spec, analysis::OpenLoop, discrete};
 use pi_core::excitation::{Excitation, Waveform};
-use pi_core::capture::{Capture, CaptureSpec, CaptureState, Sample};
-use pi_core::heapless::spsc::{Producer, Queue};
-use pi_core::link::{Board, Link};
+use pi_core::capture::Capture;
+use pi_core::heapless::spsc::Queue;
+use pi_core::link::{Link, LoopBoard};
 use pi_core::prelude::*;
-use pi_core::{LoopStatus, Observation, OffsetCalibration, OffsetProgress, SetpointShaper, Supervisor};
+use pi_core::{Observation, OffsetCalibration, OffsetProgress, SetpointShaper, Supervisor};
 
 unsafe extern "C" {
     fn control_path_reached_a_panic() -> !;
@@ -245,45 +245,6 @@ fn parts_alone() {
 /// The samples the probe's capture holds.
 const CAPTURE: usize = 256;
 
-/// The link's way to the loop, as a firmware would write it (here all in one
-/// thread: the loop and capture borrowed between ticks).
-struct ProbeBoard<'a, 'q> {
-    cl: &'a CurrentLoop,
-    to_isr: &'a mut Producer<'q, Command>,
-    capture: &'a mut Capture<CAPTURE>,
-}
-
-impl Board for ProbeBoard<'_, '_> {
-    fn send(&mut self, command: Command) -> bool {
-        self.to_isr.enqueue(command).is_ok()
-    }
-    fn status(&mut self) -> LoopStatus {
-        self.cl.status()
-    }
-    fn gains(&mut self) -> PiGains {
-        self.cl.pi().config().gains()
-    }
-    fn limits(&mut self) -> SetpointLimits {
-        *self.cl.config().setpoint()
-    }
-    fn period_s(&mut self) -> f32 {
-        self.cl.config().period_s()
-    }
-    fn capture_capacity(&mut self) -> usize {
-        self.capture.capacity()
-    }
-    fn arm_capture(&mut self, spec: CaptureSpec) -> Result<(), pi_core::ConfigError> {
-        let s = self.cl.status();
-        self.capture.arm(spec, s.target_a, s.current_a)
-    }
-    fn capture_progress(&mut self) -> (CaptureState, usize, CaptureSpec) {
-        (self.capture.state(), self.capture.samples().len(), self.capture.spec())
-    }
-    fn read_capture(&mut self, first: usize, out: &mut [Sample]) -> usize {
-        self.capture.read(first, out)
-    }
-}
-
 #[unsafe(no_mangle)]
 pub extern "C" fn _start() -> ! {
     let Some(mut cl) = build() else {
@@ -303,10 +264,11 @@ pub extern "C" fn _start() -> ! {
     let mut capture: Capture<CAPTURE> = Capture::new();
     loop {
         // Main loop: bytes from the bench link (a reply is sent, here dropped).
-        let mut board = ProbeBoard {
+        // The link's way to the loop, as a single-context firmware writes it.
+        let mut board = LoopBoard {
             cl: &cl,
-            to_isr: &mut to_isr,
             capture: &mut capture,
+            send: |c| to_isr.enqueue(c).is_ok(),
         };
         for _ in 0..black_box(4) {
             if let Some(reply) = link.receive(black_box(0u8), &mut board) {
