@@ -39,6 +39,8 @@ PROBES = {
     "pi_retune_handover": "probe_pi_update",
     "pi_tustin_mixed": "probe_pi_update",
     "pi_clamping_mixed": "probe_pi_update",
+    "fixed_pi_linear": "probe_fixed_pi_update",
+    "fixed_pi_saturated": "probe_fixed_pi_update",
     "loop_closed_run": "probe_loop_tick",
     "loop_saturated": "probe_loop_tick",
     "loop_overcurrent_counting": "probe_loop_tick",

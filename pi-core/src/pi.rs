@@ -76,6 +76,8 @@
 use crate::error::{ConfigError, Requirement, finite, non_negative, positive, within};
 use crate::num::clamp;
 
+pub mod fixed;
+
 /// The numbers the control law runs on: `f32` on a core with an FPU. The
 /// law ([`Law`]) is written once over this trait, so another arithmetic
 /// (fixed point for cores without an FPU) runs the same law.

@@ -23,6 +23,7 @@ use core::panic::PanicInfo;
 
 use pi_core::capture::{Capture, CaptureSpec, Trigger};
 use pi_core::design::{RlPlant, Sampling, Spec, discrete};
+use pi_core::pi::fixed::{FixedPi, FixedScale};
 use pi_core::prelude::*;
 
 #[panic_handler]
@@ -143,6 +144,13 @@ fn probe_pi_update(pi: &mut PiController, setpoint_a: f32, measured_a: f32) -> f
     pi.update(setpoint_a, measured_a)
 }
 
+/// The fixed-point PI update (Q15 in, Q15 out).
+#[inline(never)]
+#[unsafe(no_mangle)]
+fn probe_fixed_pi_update(pi: &mut FixedPi, setpoint_q15: i16, measured_q15: i16) -> i16 {
+    pi.update(setpoint_q15, measured_q15)
+}
+
 /// One tick of the assembled loop.
 #[inline(never)]
 #[unsafe(no_mangle)]
@@ -184,6 +192,12 @@ fn announce(name: &[u8]) {
 fn pi_call(pi: &mut PiController, setpoint_a: f32, measured_a: f32) -> f32 {
     let (r, y) = (black_box(setpoint_a), black_box(measured_a));
     measure(|| probe_pi_update(black_box(pi), r, y))
+}
+
+/// One fixed-point PI update through the probe, with opaque inputs.
+fn fixed_pi_call(pi: &mut FixedPi, setpoint_q15: i16, measured_q15: i16) -> i16 {
+    let (r, y) = (black_box(setpoint_q15), black_box(measured_q15));
+    measure(|| probe_fixed_pi_update(black_box(pi), r, y))
 }
 
 /// One loop tick through the probe, with opaque inputs.
@@ -321,6 +335,25 @@ fn main() -> u32 {
     scenario(b"scenario pi_clamping_mixed\n", || {
         for k in 0..20 {
             pi_call(&mut pi, if k < 10 { 1.5 } else { 4.0 }, -1.0 + 0.1 * k as f32);
+        }
+    });
+
+    // The fixed-point PI on the same configuration, full scales 8 A and
+    // 32 V (1.5 A is 6144 counts, 4 A 16384).
+    let Ok(scale) = FixedScale::new(8.0, 32.0) else { return 2 };
+    let Ok(mut fixed) = FixedPi::new(pi_config, scale) else { return 2 };
+    scenario(b"scenario fixed_pi_linear\n", || {
+        for k in 0..20 {
+            fixed_pi_call(&mut fixed, 6144, 5939 + 4 * k);
+        }
+    });
+    scenario(b"scenario fixed_pi_saturated\n", || {
+        for k in 0..20 {
+            if k < 10 {
+                fixed_pi_call(&mut fixed, 16384, -8192);
+            } else {
+                fixed_pi_call(&mut fixed, -16384, 8192);
+            }
         }
     });
 

@@ -25,6 +25,7 @@ use pi_core::excitation::{Excitation, Waveform};
 use pi_core::capture::Capture;
 use pi_core::heapless::spsc::Queue;
 use pi_core::link::{Link, LoopBoard};
+use pi_core::pi::fixed::{FixedPi, FixedScale};
 use pi_core::prelude::*;
 use pi_core::{Observation, OffsetCalibration, OffsetProgress, SetpointShaper, Supervisor};
 
@@ -205,6 +206,30 @@ fn bare_pi() {
     black_box(pi.track(black_box(3.0), black_box(1.0), black_box(0.5)).is_ok());
     black_box(pi.saturation());
     pi.reset();
+    // The fixed-point PI on the same configuration (every rule and scheme:
+    // the configuration is opaque), built at start-up, updated in the
+    // interrupt on opaque Q15 readings.
+    let Ok(config) = config
+        .with_rule(if black_box(true) {
+            IntegratorRule::Tustin
+        } else {
+            IntegratorRule::BackwardEuler
+        })
+        .with_anti_windup(if black_box(true) {
+            AntiWindup::Clamping
+        } else {
+            AntiWindup::default()
+        })
+    else {
+        return;
+    };
+    let Ok(scale) = FixedScale::new(black_box(8.0), black_box(32.0)) else {
+        return;
+    };
+    if let Ok(mut fixed) = FixedPi::new(config, scale) {
+        black_box(fixed.update(black_box(6144), black_box(-32768)));
+        black_box(fixed.update(black_box(i16::MAX), black_box(i16::MIN)));
+    }
 }
 
 /// The other pieces on their own, as a firmware that assembles its own loop
