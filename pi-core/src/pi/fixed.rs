@@ -11,7 +11,9 @@
 //! than one output count. Each coefficient (`Kp`, `Kp b`, `Kp (1 - b)`,
 //! `Ki Ts`, `Ts / Tt`, in full-scale units) is an `i16` mantissa with a power
 //! of two, computed once from the validated float configuration, never in the
-//! interrupt.
+//! interrupt; every coefficient must be below 8 (full scale of voltage per
+//! full scale of current: choose the full scales so), so each product is a
+//! multiply and a right shift.
 //!
 //! # Why it cannot overflow
 //!
@@ -19,8 +21,8 @@
 //! * A product reduces its value to Q15 first, saturating to `i16`'s range,
 //!   and multiplies it by the `i16` mantissa: `|x m| <= 2^30`, inside `i32`,
 //!   one 32-bit multiply (the Cortex-M0 has no 32 x 32 -> 64 one, and none
-//!   is needed). The power of two is then applied as a right shift (at most
-//!   31) or a left shift that saturates when the product would leave `i32`.
+//!   is needed). The power of two is then applied as a right shift (0 to
+//!   31): coefficients are below 8, so none needs a left shift.
 //! * Limits are `min` / `max`, never `clamp` (which has a panic path).
 //!
 //! So every input from the full `i16` range, and every configuration that
@@ -54,25 +56,34 @@ impl Fixed {
     }
 }
 
-/// A coefficient: `mantissa * 2^(shift - 15)` in full-scale units.
+/// A coefficient below 8 in full-scale units: `mantissa * 2^(3 - right) /
+/// 2^15`, so a product is `(x * mantissa) >> right` in Q27, a right shift
+/// only.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub struct FixedGain {
     mantissa: i16,
-    shift: i8,
+    right: u8,
 }
 
+/// The largest coefficient, in full-scale units (exclusive).
+pub const MAX_COEFFICIENT: f32 = 8.0;
+
 impl FixedGain {
-    /// The nearest coefficient to `k` (finite): a mantissa of 14 to 15
-    /// significant bits, so the relative error is at most 2^-15.
+    /// The nearest coefficient to `k`: a mantissa of 14 to 15 significant
+    /// bits, so the relative error is at most 2^-15 (coefficients below
+    /// 2^-28 round to 0). `None` unless `|k| < 8`.
     #[allow(clippy::manual_clamp)]
-    pub fn new(k: f32) -> Self {
-        if k == 0.0 || !k.is_finite() {
-            return Self {
-                mantissa: 0,
-                shift: 0,
-            };
+    pub fn new(k: f32) -> Option<Self> {
+        if k.is_nan() || k.abs() >= MAX_COEFFICIENT {
+            return None;
         }
-        // k = m 2^e with 0.5 <= |m| < 1.
+        if k == 0.0 {
+            return Some(Self {
+                mantissa: 0,
+                right: 0,
+            });
+        }
+        // k = m 2^e with 0.5 <= |m| < 1, e <= 3.
         let (m, e) = libm::frexpf(k);
         let mut mantissa = libm::roundf(m * 32768.0) as i32;
         let mut e = e;
@@ -80,37 +91,25 @@ impl FixedGain {
             mantissa /= 2;
             e += 1;
         }
-        Self {
-            mantissa: mantissa as i16,
-            shift: e.max(-100).min(100) as i8,
+        if e > 3 {
+            return None;
         }
+        let right = 3 - e;
+        if right > 31 {
+            return Some(Self {
+                mantissa: 0,
+                right: 0,
+            });
+        }
+        Some(Self {
+            mantissa: mantissa as i16,
+            right: right as u8,
+        })
     }
 
     /// Its value.
     pub fn value(self) -> f32 {
-        self.mantissa as f32 / 32768.0 * libm::exp2f(self.shift as f32)
-    }
-}
-
-/// `p << s` saturated to `i32`.
-#[inline(always)]
-fn shl_saturating(p: i32, s: u32) -> i32 {
-    if s >= 31 {
-        return if p > 0 {
-            i32::MAX
-        } else if p < 0 {
-            i32::MIN
-        } else {
-            0
-        };
-    }
-    let limit = i32::MAX >> s;
-    if p > limit {
-        i32::MAX
-    } else if p < -limit {
-        i32::MIN
-    } else {
-        p << s
+        self.mantissa as f32 / 32768.0 * libm::exp2f(3.0 - self.right as f32)
     }
 }
 
@@ -131,14 +130,9 @@ impl Arithmetic for Fixed {
     #[inline(always)]
     fn times(self, k: FixedGain) -> Fixed {
         let x = self.to_q15() as i32;
-        let p = x * k.mantissa as i32;
-        // x / 2^15 * m / 2^15 * 2^shift full scales, in Q27: p * 2^(shift - 3).
-        let s = k.shift as i32 - 3;
-        Fixed(if s >= 0 {
-            shl_saturating(p, s as u32)
-        } else {
-            p >> ((-s) as u32).min(31)
-        })
+        // x / 2^15 * m / 2^15 * 2^(3 - right) full scales, in Q27:
+        // (x m) >> right; |x m| <= 2^30, and right <= 31.
+        Fixed((x * k.mantissa as i32) >> (k.right & 31))
     }
 
     #[inline(always)]
@@ -211,7 +205,7 @@ impl FixedPi {
         };
         let limits = config.limits();
         Ok(Self {
-            law: Law::new(coefficients(&config, &scale)),
+            law: Law::new(coefficients(&config, &scale)?),
             min: volts(limits.min_v())?,
             max: volts(limits.max_v())?,
             tustin: config.rule() == IntegratorRule::Tustin,
@@ -253,17 +247,30 @@ impl FixedPi {
     }
 }
 
-/// The float configuration's coefficients in full-scale units.
-fn coefficients(c: &PiConfig, scale: &FixedScale) -> Coefficients<FixedGain> {
+/// The float configuration's coefficients in full-scale units; refused
+/// (naming the full scale that would fix it) when `Kp` or `Ki Ts` reaches 8
+/// full scales of voltage per full scale of current.
+fn coefficients(c: &PiConfig, scale: &FixedScale) -> Result<Coefficients<FixedGain>, ConfigError> {
     let f = Coefficients::from_config(c);
     let ratio = scale.current_a / scale.voltage_v;
-    Coefficients {
-        kp: FixedGain::new(f.kp * ratio),
-        kp_b: FixedGain::new(f.kp_b * ratio),
-        kp_unweighted: FixedGain::new(f.kp_unweighted * ratio),
-        ki_step: FixedGain::new(f.ki_step * ratio),
-        tracking: FixedGain::new(f.tracking),
-    }
+    let gain = |k: f32| {
+        FixedGain::new(k * ratio).ok_or(ConfigError::new(
+            "voltage_full_scale_v",
+            scale.voltage_v,
+            Requirement::Above("Kp times current_full_scale_a over 8"),
+        ))
+    };
+    Ok(Coefficients {
+        kp: gain(f.kp)?,
+        kp_b: gain(f.kp_b)?,
+        kp_unweighted: gain(f.kp_unweighted)?,
+        ki_step: gain(f.ki_step)?,
+        // Ts / Tt is at most 1.
+        tracking: FixedGain::new(f.tracking).unwrap_or(FixedGain {
+            mantissa: 16384,
+            right: 2,
+        }),
+    })
 }
 
 #[cfg(test)]
