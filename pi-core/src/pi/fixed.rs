@@ -221,14 +221,26 @@ impl FixedPi {
     #[inline]
     pub fn update(&mut self, setpoint_q15: i16, measured_q15: i16) -> i16 {
         let (r, y) = (Fixed::from_q15(setpoint_q15), Fixed::from_q15(measured_q15));
+        let u = if !self.tustin && !self.clamping {
+            self.law.law::<false, false>(r, y, self.min, self.max)
+        } else {
+            self.general(r, y)
+        };
+        u.to_q15()
+    }
+
+    /// Trapezoidal integration and clamping, out of line (the common
+    /// configuration keeps the update short).
+    #[cold]
+    #[inline(never)]
+    fn general(&mut self, r: Fixed, y: Fixed) -> Fixed {
         let (lo, hi) = (self.min, self.max);
-        let u = match (self.tustin, self.clamping) {
+        match (self.tustin, self.clamping) {
             (false, false) => self.law.law::<false, false>(r, y, lo, hi),
             (false, true) => self.law.law::<false, true>(r, y, lo, hi),
             (true, false) => self.law.law::<true, false>(r, y, lo, hi),
             (true, true) => self.law.law::<true, true>(r, y, lo, hi),
-        };
-        u.to_q15()
+        }
     }
 
     /// The integrator, Q27 of the voltage full scale.
