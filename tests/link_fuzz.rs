@@ -8,13 +8,12 @@
 //! OOPSLA 2014) makes 1,000 frames from it, so the default 1,000 cases feed
 //! 10^6 frames (`PROPTEST_CASES` scales it).
 
-use pi_core::capture::{Capture, CaptureSpec, CaptureState, Sample};
+use pi_core::capture::Capture;
 use pi_core::link::frame::{FrameDecoder, MAX_FRAME, MAX_PAYLOAD, crc16, encode, parse};
 use pi_core::link::{
-    Board, Link, MethodWire, Reply, ReplyFrame, Request, RequestFrame, TriggerWire, VERSION, WaveformWire,
+    Link, LoopBoard, MethodWire, Reply, ReplyFrame, Request, RequestFrame, TriggerWire, VERSION, WaveformWire,
 };
 use pi_core::prelude::*;
-use pi_core::{ConfigError, LoopStatus};
 use proptest::prelude::*;
 
 use ampwright_tests::cases;
@@ -99,43 +98,23 @@ impl FuzzBoard {
     }
 }
 
-impl Board for FuzzBoard {
-    fn send(&mut self, command: Command) -> bool {
-        if self.queue.len() >= 4 {
-            return false;
+impl FuzzBoard {
+    /// The main loop's view for the handler: four commands at most wait,
+    /// and every one handed over is counted.
+    fn board(&mut self) -> LoopBoard<'_, 64, impl FnMut(Command) -> bool + '_> {
+        let (queue, sent) = (&mut self.queue, &mut self.sent);
+        LoopBoard {
+            cl: &self.cl,
+            capture: &mut self.capture,
+            send: move |c| {
+                if queue.len() >= 4 {
+                    return false;
+                }
+                *sent += 1;
+                queue.push(c);
+                true
+            },
         }
-        self.sent += 1;
-        self.queue.push(command);
-        true
-    }
-    fn status(&mut self) -> LoopStatus {
-        self.cl.status()
-    }
-    fn gains(&mut self) -> PiGains {
-        self.cl.pi().config().gains()
-    }
-    fn limits(&mut self) -> SetpointLimits {
-        *self.cl.config().setpoint()
-    }
-    fn period_s(&mut self) -> f32 {
-        self.cl.config().period_s()
-    }
-    fn capture_capacity(&mut self) -> usize {
-        self.capture.capacity()
-    }
-    fn arm_capture(&mut self, spec: CaptureSpec) -> Result<(), ConfigError> {
-        let s = self.cl.status();
-        self.capture.arm(spec, s.target_a, s.current_a)
-    }
-    fn capture_progress(&mut self) -> (CaptureState, usize, CaptureSpec) {
-        (
-            self.capture.state(),
-            self.capture.samples().len(),
-            self.capture.spec(),
-        )
-    }
-    fn read_capture(&mut self, first: usize, out: &mut [Sample]) -> usize {
-        self.capture.read(first, out)
     }
 }
 
@@ -351,7 +330,7 @@ fn run(seed: u64, frames: usize) -> Result<(), TestCaseError> {
         let sent_before = board.sent;
         let mut replies = Vec::new();
         for &b in &bytes {
-            if let Some(out) = link.receive(b, &mut board) {
+            if let Some(out) = link.receive(b, &mut board.board()) {
                 prop_assert!(out.len() <= MAX_FRAME);
                 for &o in out {
                     if let Some(payload) = reader.push(o) {

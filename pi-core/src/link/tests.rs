@@ -57,42 +57,21 @@ impl TestBoard {
     }
 }
 
-impl Board for TestBoard {
-    fn send(&mut self, command: Command) -> bool {
-        if self.queue.len() >= 4 {
-            return false;
+impl TestBoard {
+    /// The main loop's view for the handler: the queue holds four commands.
+    fn board(&mut self) -> LoopBoard<'_, 32, impl FnMut(Command) -> bool + '_> {
+        let queue = &mut self.queue;
+        LoopBoard {
+            cl: &self.cl,
+            capture: &mut self.capture,
+            send: move |c| {
+                if queue.len() >= 4 {
+                    return false;
+                }
+                queue.push(c);
+                true
+            },
         }
-        self.queue.push(command);
-        true
-    }
-    fn status(&mut self) -> LoopStatus {
-        self.cl.status()
-    }
-    fn gains(&mut self) -> PiGains {
-        self.cl.pi().config().gains()
-    }
-    fn limits(&mut self) -> SetpointLimits {
-        *self.cl.config().setpoint()
-    }
-    fn period_s(&mut self) -> f32 {
-        self.cl.config().period_s()
-    }
-    fn capture_capacity(&mut self) -> usize {
-        self.capture.capacity()
-    }
-    fn arm_capture(&mut self, spec: CaptureSpec) -> Result<(), ConfigError> {
-        let s = self.cl.status();
-        self.capture.arm(spec, s.target_a, s.current_a)
-    }
-    fn capture_progress(&mut self) -> (CaptureState, usize, CaptureSpec) {
-        (
-            self.capture.state(),
-            self.capture.samples().len(),
-            self.capture.spec(),
-        )
-    }
-    fn read_capture(&mut self, first: usize, out: &mut [Sample]) -> usize {
-        self.capture.read(first, out)
     }
 }
 
@@ -107,7 +86,7 @@ fn feed(link: &mut Link, board: &mut TestBoard, bytes: &[u8]) -> Vec<ReplyFrame>
     let mut replies = Vec::new();
     let mut decoder = FrameDecoder::new();
     for &b in bytes {
-        if let Some(out) = link.receive(b, board) {
+        if let Some(out) = link.receive(b, &mut board.board()) {
             let out = out.to_vec();
             for &o in &out {
                 if let Some(payload) = decoder.push(o) {
@@ -534,7 +513,9 @@ fn the_device_identifies_its_winding_from_the_capture() {
         high_v: 4.0,
         hold_ticks: 8,
     };
-    board.send(Command::Excite(Excitation::new(steps, 40, 3.0, 50e-6).unwrap()));
+    board
+        .board()
+        .send(Command::Excite(Excitation::new(steps, 40, 3.0, 50e-6).unwrap()));
     let per_count = (board.cl.sense().to_amperes(2049) - board.cl.sense().to_amperes(2048)) as f64;
     let mut i = 0.0f64;
     for _ in 0..40 {
