@@ -584,6 +584,44 @@ impl<A: Arithmetic> Law<A> {
         self.output = A::ZERO;
         A::ZERO
     }
+
+    /// Installs coefficients `new`, moving the integrator by the change of the
+    /// proportional part at this setpoint and measurement so that `P + I` is
+    /// unchanged (the bumpless handover of a retune). False, and nothing
+    /// changed, when that change is no number or infinite.
+    fn hand_over(&mut self, new: Coefficients<A::Coefficient>, setpoint_a: A, measured_a: A) -> bool {
+        let shift = self
+            .k
+            .proportional(setpoint_a, measured_a)
+            .minus(new.proportional(setpoint_a, measured_a));
+        // `shift - shift` is NaN for an infinite shift as well as a NaN one.
+        if shift.minus(shift).is_bad() {
+            return false;
+        }
+        self.integrator = self.integrator.plus(shift);
+        self.k = new;
+        true
+    }
+
+    /// Sets the integrator so that this setpoint and measurement give output
+    /// `u` (inside `[min, max]`), held on the steady-state range
+    /// `[min, max] + Kp (1 - b) r` when the proportional part alone is beyond it.
+    fn track(&mut self, u: A, setpoint_a: A, measured_a: A, min: A, max: A) {
+        let p = self.k.proportional(setpoint_a, measured_a);
+        let offset = setpoint_a.times(self.k.kp_unweighted);
+        self.integrator = u.minus(p).limited(min.plus(offset), max.plus(offset));
+        self.prev_error = setpoint_a.minus(measured_a);
+        self.demand = u;
+        self.output = u;
+    }
+
+    /// Back to rest: integrator, remembered error and outputs zero.
+    fn rest(&mut self) {
+        self.integrator = A::ZERO;
+        self.prev_error = A::ZERO;
+        self.demand = A::ZERO;
+        self.output = A::ZERO;
+    }
 }
 
 /// The PI controller with its state.
@@ -687,14 +725,13 @@ impl PiController {
     /// proportional part at this sample so that `P + I` is unchanged. False (and
     /// nothing changed) when that change is not finite.
     fn hand_over(&mut self, setpoint_a: f32, measured_a: f32) -> bool {
-        let new = Coefficients::from_config(&self.config);
-        let shift =
-            self.law.k.proportional(setpoint_a, measured_a) - new.proportional(setpoint_a, measured_a);
-        if !shift.is_finite() {
+        if !self
+            .law
+            .hand_over(Coefficients::from_config(&self.config), setpoint_a, measured_a)
+        {
             return false;
         }
-        self.law.integrator += shift;
-        self.install(new);
+        self.path &= !path::RETUNE;
         true
     }
 
@@ -742,12 +779,7 @@ impl PiController {
         let r = finite("setpoint_a", setpoint_a)?;
         let y = finite("measured_a", measured_a)?;
         self.install_waiting();
-        let p = self.law.k.proportional(r, y);
-        let offset = self.law.k.kp_unweighted * r;
-        self.law.integrator = clamp(u - p, l.min_v + offset, l.max_v + offset);
-        self.law.prev_error = r - y;
-        self.law.demand = u;
-        self.law.output = u;
+        self.law.track(u, r, y, l.min_v, l.max_v);
         Ok(())
     }
 
@@ -755,10 +787,7 @@ impl PiController {
     /// waiting from a retune take effect here.
     pub fn reset(&mut self) {
         self.install_waiting();
-        self.law.integrator = 0.0;
-        self.law.prev_error = 0.0;
-        self.law.demand = 0.0;
-        self.law.output = 0.0;
+        self.law.rest();
     }
 
     /// Integrator state in volts. After an unsaturated update it is `u - P`;

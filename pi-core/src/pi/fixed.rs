@@ -30,7 +30,7 @@
 //! tests runs them); values beyond 16 full scales inside the law saturate
 //! there, which only a gain far beyond any loop's can reach.
 
-use super::{AntiWindup, Arithmetic, Coefficients, IntegratorRule, Law, PiConfig};
+use super::{AntiWindup, Arithmetic, Coefficients, IntegratorRule, Law, PiConfig, PiGains};
 use crate::error::{ConfigError, Requirement, positive};
 
 /// Guard bits below Q15 inside the law.
@@ -173,6 +173,69 @@ impl FixedScale {
     pub fn volts_per_count(&self) -> f32 {
         self.voltage_v / 32768.0
     }
+
+    /// The current full scale, amperes.
+    pub fn current_full_scale_a(&self) -> f32 {
+        self.current_a
+    }
+
+    /// The voltage full scale, volts.
+    pub fn voltage_full_scale_v(&self) -> f32 {
+        self.voltage_v
+    }
+
+    /// A voltage in Q27 of the voltage full scale, refused beyond 16 full
+    /// scales (naming `voltage_full_scale_v`, too small for it).
+    pub(crate) fn volts(&self, v: f32) -> Result<Fixed, ConfigError> {
+        self.q27("voltage_full_scale_v", v / self.voltage_v, self.voltage_v)
+    }
+
+    /// A current in Q27 of the current full scale, refused beyond 16 full
+    /// scales (naming `current_full_scale_a`).
+    #[allow(dead_code)]
+    pub(crate) fn amperes(&self, a: f32) -> Result<Fixed, ConfigError> {
+        self.q27("current_full_scale_a", a / self.current_a, self.current_a)
+    }
+
+    fn q27(&self, field: &'static str, share: f32, full_scale: f32) -> Result<Fixed, ConfigError> {
+        let q = share * (1u32 << (15 + GUARD_BITS)) as f32;
+        if q.is_nan() || q.abs() >= i32::MAX as f32 {
+            return Err(ConfigError::new(
+                field,
+                full_scale,
+                Requirement::Above("a sixteenth of the values it must hold"),
+            ));
+        }
+        Ok(Fixed(libm::roundf(q) as i32))
+    }
+}
+
+/// New gains for a [`FixedPi`], converted to its coefficients ahead of time
+/// (in the main loop, where float arithmetic may take its time), so the
+/// interrupt that applies them does no float arithmetic.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct FixedRetune {
+    k: Coefficients<FixedGain>,
+    config: PiConfig,
+}
+
+impl FixedRetune {
+    /// The gains `gains` on the rest of configuration `base` (period, rule,
+    /// anti-windup, limits) at full scales `scale`; refused like
+    /// [`FixedPi::new`] when a coefficient reaches 8 full scales.
+    pub fn new(base: &PiConfig, gains: PiGains, scale: &FixedScale) -> Result<Self, ConfigError> {
+        let mut config = *base;
+        config.gains = gains;
+        Ok(Self {
+            k: coefficients(&config, scale)?,
+            config,
+        })
+    }
+
+    /// The configuration the retune installs.
+    pub fn config(&self) -> &PiConfig {
+        &self.config
+    }
 }
 
 /// The PI controller on integer arithmetic.
@@ -181,8 +244,10 @@ pub struct FixedPi {
     law: Law<Fixed>,
     min: Fixed,
     max: Fixed,
-    tustin: bool,
-    clamping: bool,
+    /// Which update path ([`path`] bits): 0 is the common one.
+    path: u8,
+    /// Coefficients waiting for the next update's handover.
+    waiting: Coefficients<FixedGain>,
     config: PiConfig,
     scale: FixedScale,
 }
@@ -192,24 +257,21 @@ impl FixedPi {
     /// scales; refused when the output limits are beyond 16 voltage full
     /// scales (`voltage_full_scale_v` too small for them).
     pub fn new(config: PiConfig, scale: FixedScale) -> Result<Self, ConfigError> {
-        let volts = |v: f32| -> Result<Fixed, ConfigError> {
-            let q = v / scale.voltage_v * (1u32 << (15 + GUARD_BITS)) as f32;
-            if q.abs() >= i32::MAX as f32 {
-                return Err(ConfigError::new(
-                    "voltage_full_scale_v",
-                    scale.voltage_v,
-                    Requirement::Above("a sixteenth of the output limits"),
-                ));
-            }
-            Ok(Fixed(libm::roundf(q) as i32))
-        };
         let limits = config.limits();
+        let k = coefficients(&config, &scale)?;
+        let mut path = 0;
+        if config.rule() == IntegratorRule::Tustin {
+            path |= super::path::TUSTIN;
+        }
+        if config.anti_windup() == AntiWindup::Clamping {
+            path |= super::path::CLAMPING;
+        }
         Ok(Self {
-            law: Law::new(coefficients(&config, &scale)?),
-            min: volts(limits.min_v())?,
-            max: volts(limits.max_v())?,
-            tustin: config.rule() == IntegratorRule::Tustin,
-            clamping: config.anti_windup() == AntiWindup::Clamping,
+            law: Law::new(k),
+            min: scale.volts(limits.min_v())?,
+            max: scale.volts(limits.max_v())?,
+            path,
+            waiting: k,
             config,
             scale,
         })
@@ -220,26 +282,104 @@ impl FixedPi {
     /// the configured limits.
     #[inline]
     pub fn update(&mut self, setpoint_q15: i16, measured_q15: i16) -> i16 {
-        let (r, y) = (Fixed::from_q15(setpoint_q15), Fixed::from_q15(measured_q15));
-        let u = if !self.tustin && !self.clamping {
-            self.law.law::<false, false>(r, y, self.min, self.max)
-        } else {
-            self.general(r, y)
-        };
-        u.to_q15()
+        let (lo, hi) = (self.min, self.max);
+        self.step(
+            Fixed::from_q15(setpoint_q15),
+            Fixed::from_q15(measured_q15),
+            lo,
+            hi,
+        )
+        .to_q15()
     }
 
-    /// Trapezoidal integration and clamping, out of line (the common
-    /// configuration keeps the update short).
+    /// One step with limits narrower than the configured ones for this step
+    /// only (Q15 of the voltage full scale), for example what the bus gives
+    /// now: the intersection with the configured range; when that is empty
+    /// both collapse onto the upper one, kept inside the configured range (as
+    /// [`super::PiController::update_within`]).
+    #[inline]
+    pub fn update_within(&mut self, setpoint_q15: i16, measured_q15: i16, min_q15: i16, max_q15: i16) -> i16 {
+        let lo = self.min.max(Fixed::from_q15(min_q15));
+        let hi = self.max.min(Fixed::from_q15(max_q15));
+        let (lo, hi) = if lo <= hi {
+            (lo, hi)
+        } else {
+            let v = hi.max(self.min);
+            (v, v)
+        };
+        self.step(
+            Fixed::from_q15(setpoint_q15),
+            Fixed::from_q15(measured_q15),
+            lo,
+            hi,
+        )
+        .to_q15()
+    }
+
+    /// One step in Q27 with limits `lo <= hi` inside the configured range.
+    #[inline(always)]
+    pub(crate) fn step(&mut self, r: Fixed, y: Fixed, lo: Fixed, hi: Fixed) -> Fixed {
+        if self.path == 0 {
+            self.law.law::<false, false>(r, y, lo, hi)
+        } else {
+            self.general(r, y, lo, hi)
+        }
+    }
+
+    /// Trapezoidal integration, clamping and the handover of a retune, out
+    /// of line (the common configuration keeps the update short).
     #[cold]
     #[inline(never)]
-    fn general(&mut self, r: Fixed, y: Fixed) -> Fixed {
-        let (lo, hi) = (self.min, self.max);
-        match (self.tustin, self.clamping) {
+    fn general(&mut self, r: Fixed, y: Fixed, lo: Fixed, hi: Fixed) -> Fixed {
+        if self.path & super::path::RETUNE != 0 {
+            // Saturating arithmetic: the handover always succeeds.
+            self.law.hand_over(self.waiting, r, y);
+            self.path &= !super::path::RETUNE;
+        }
+        match (
+            self.path & super::path::TUSTIN != 0,
+            self.path & super::path::CLAMPING != 0,
+        ) {
             (false, false) => self.law.law::<false, false>(r, y, lo, hi),
             (false, true) => self.law.law::<false, true>(r, y, lo, hi),
             (true, false) => self.law.law::<true, false>(r, y, lo, hi),
             (true, true) => self.law.law::<true, true>(r, y, lo, hi),
+        }
+    }
+
+    /// Bumpless retune, as [`super::PiController::retune`]: the new gains take
+    /// over at the next update, which first moves the integrator by the
+    /// change of the proportional part at its own setpoint and measurement.
+    /// No float arithmetic: the coefficients were computed by
+    /// [`FixedRetune::new`]. A retune for other limits or another period
+    /// than this controller's takes only its gains.
+    pub fn retune(&mut self, retune: &FixedRetune) {
+        self.waiting = retune.k;
+        self.config.gains = retune.config.gains;
+        self.path |= super::path::RETUNE;
+    }
+
+    /// Track/preload, as [`super::PiController::track`]: the integrator set
+    /// so that this setpoint and measurement give `output_q15` (limited to
+    /// the configured range). Gains waiting from a retune take effect here.
+    pub fn track(&mut self, output_q15: i16, setpoint_q15: i16, measured_q15: i16) {
+        self.install_waiting();
+        let u = Fixed::from_q15(output_q15).limited(self.min, self.max);
+        let (r, y) = (Fixed::from_q15(setpoint_q15), Fixed::from_q15(measured_q15));
+        self.law.track(u, r, y, self.min, self.max);
+    }
+
+    /// Back to rest (integrator, remembered error and output zero); gains
+    /// waiting from a retune take effect here.
+    pub fn reset(&mut self) {
+        self.install_waiting();
+        self.law.rest();
+    }
+
+    fn install_waiting(&mut self) {
+        if self.path & super::path::RETUNE != 0 {
+            self.law.k = self.waiting;
+            self.path &= !super::path::RETUNE;
         }
     }
 
@@ -248,7 +388,23 @@ impl FixedPi {
         self.law.integrator
     }
 
-    /// The configuration it was built from.
+    /// The last update's output, Q27 of the voltage full scale.
+    pub fn last_output(&self) -> Fixed {
+        self.law.output
+    }
+
+    /// Whether the last update saturated.
+    pub fn saturation(&self) -> super::Saturation {
+        if self.law.demand > self.law.output {
+            super::Saturation::High
+        } else if self.law.demand < self.law.output {
+            super::Saturation::Low
+        } else {
+            super::Saturation::None
+        }
+    }
+
+    /// The configuration in use (with the gains of the last retune).
     pub fn config(&self) -> &PiConfig {
         &self.config
     }

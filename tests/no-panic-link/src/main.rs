@@ -25,7 +25,7 @@ use pi_core::excitation::{Excitation, Waveform};
 use pi_core::capture::Capture;
 use pi_core::heapless::spsc::Queue;
 use pi_core::link::{Link, LoopBoard};
-use pi_core::pi::fixed::{FixedPi, FixedScale};
+use pi_core::pi::fixed::{FixedPi, FixedRetune, FixedScale};
 use pi_core::prelude::*;
 use pi_core::{Observation, OffsetCalibration, OffsetProgress, SetpointShaper, Supervisor};
 
@@ -229,6 +229,13 @@ fn bare_pi() {
     if let Ok(mut fixed) = FixedPi::new(config, scale) {
         black_box(fixed.update(black_box(6144), black_box(-32768)));
         black_box(fixed.update(black_box(i16::MAX), black_box(i16::MIN)));
+        black_box(fixed.update_within(black_box(100), black_box(-7), black_box(9), black_box(-9)));
+        if let Ok(retune) = FixedRetune::new(&config, black_box(config.gains()), &scale) {
+            fixed.retune(&retune);
+        }
+        black_box(fixed.update(black_box(6144), black_box(-32768)));
+        fixed.track(black_box(300), black_box(i16::MIN), black_box(i16::MAX));
+        fixed.reset();
     }
 }
 

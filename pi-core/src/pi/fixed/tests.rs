@@ -171,3 +171,82 @@ fn output_limits_beyond_sixteen_full_scales_are_refused_by_name() {
     let e = FixedPi::new(config, FixedScale::new(240.0, 24.0).unwrap()).unwrap_err();
     assert_eq!(e.field, "voltage_full_scale_v");
 }
+
+#[test]
+fn a_retune_and_a_track_follow_the_float_controller_within_the_same_bound() {
+    // The float controller's retune is bumpless (its own tests); the fixed one
+    // hands over at the same update with the same rule, so it stays within the
+    // quantisation bound of the test above through the retune, and a track
+    // lands on the float's integrator within it too.
+    let (mut float, mut fixed, scale) = pair(
+        AntiWindup::BackCalculation {
+            tracking_time_s: None,
+        },
+        0.6,
+    );
+    let base = *float.config();
+    let new = PiGains::from_kp_ti(5.0, 2.0e-3)
+        .unwrap()
+        .with_setpoint_weight(0.8)
+        .unwrap();
+    let retune = FixedRetune::new(&base, new, &scale).unwrap();
+    let mut rng = Rng(5);
+    let (amp, volt) = (scale.amperes_per_count(), scale.volts_per_count());
+    let r = 4000i16; // 0.98 A
+    let mut before_handover = 0.0;
+    for k in 1..=3000u32 {
+        if k == 1000 {
+            float.retune(new);
+            fixed.retune(&retune);
+            assert_eq!(fixed.config().gains(), new);
+        }
+        if k == 2000 {
+            float.track(3.0, r as f32 * amp, 3900.0 * amp).unwrap();
+            fixed.track((3.0 / volt) as i16, r, 3900);
+            assert!((fixed.integrator().0 as f32 / 4096.0 * volt - float.integrator_v()).abs() < 2.0 * volt);
+        }
+        let y = 3900 + rng.i16() / 256;
+        let u_float = float.update(r as f32 * amp, y as f32 * amp);
+        let u_fixed = fixed.update(r, y) as f32 * volt;
+        let p = (float.last_demand_v() - float.integrator_v()).abs();
+        let bound = libm::exp2f(-15.0) * 2.0 * (p + float.integrator_v().abs())
+            + k as f32 * libm::exp2f(-27.0) * 32.0
+            + 2.0 * volt;
+        assert!(
+            (u_fixed - u_float).abs() <= bound,
+            "step {k}: fixed {u_fixed} against float {u_float} (bound {bound})"
+        );
+        if k == 999 {
+            before_handover = u_fixed;
+        }
+        if k == 1000 {
+            // Bumpless: the output moved by about one integral step, not by
+            // the change of Kp (from 12.06 to 5 V/A on a 0.4 A error).
+            assert!(
+                (u_fixed - before_handover).abs() < 0.3,
+                "{before_handover} -> {u_fixed}"
+            );
+        }
+    }
+}
+
+#[test]
+fn update_within_intersects_with_the_configured_limits_as_the_float_one_does() {
+    let (mut float, mut fixed, scale) = pair(AntiWindup::Clamping, 1.0);
+    let (amp, volt) = (scale.amperes_per_count(), scale.volts_per_count());
+    for (lo, hi) in [
+        (-5.0, 5.0),
+        (-40.0, 40.0),
+        (10.0, -10.0),
+        (30.0, 31.0),
+        (-31.0, -30.0),
+    ] {
+        let u_float = float.update_within(3000.0 * amp, 0.0, lo, hi);
+        let q = |v: f32| (v / volt).clamp(-32768.0, 32767.0) as i16;
+        let u_fixed = fixed.update_within(3000, 0, q(lo), q(hi)) as f32 * volt;
+        assert!(
+            (u_fixed - u_float).abs() <= 2.0 * volt,
+            "[{lo}, {hi}]: {u_fixed} against {u_float}"
+        );
+    }
+}
