@@ -407,6 +407,24 @@ pub struct Observation {
     pub drive: f32,
 }
 
+/// One tick's readings judged against the configuration, before counting and
+/// latching: what [`Supervisor::judge`] takes from either arithmetic.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub(crate) struct Verdict {
+    /// Every cause whose condition holds on this tick's readings, except a
+    /// stuck sensor (the supervisor counts that itself): overcurrent on this
+    /// sample, a warm winding as overload, invalid readings, a rail, the bus
+    /// window, the speed.
+    pub present: FaultSet,
+    /// The I^2t heat is at the trip level.
+    pub hot_trip: bool,
+    /// The reading, for the stuck detector.
+    pub counts: u16,
+    /// The drive is at least the stuck detector's `min_drive` (false without
+    /// stuck detection).
+    pub driven: bool,
+}
+
 /// The running supervisor.
 #[derive(Clone, Debug)]
 pub struct Supervisor {
@@ -460,14 +478,6 @@ impl Supervisor {
     pub fn check(&mut self, obs: &Observation) -> FaultSet {
         let i = obs.current_a;
         let current_ok = i.is_finite();
-        let over = current_ok && i.abs() > self.config.overcurrent.threshold_a;
-        self.over_count = if over {
-            self.over_count.saturating_add(1)
-        } else {
-            0
-        };
-        let over_trip = self.over_count >= self.config.overcurrent.samples;
-
         let (hot_trip, still_hot) = match &mut self.thermal {
             Some(model) => {
                 model.tick(i);
@@ -475,24 +485,6 @@ impl Supervisor {
             }
             None => (false, false),
         };
-
-        let stuck_trip = match self.config.stuck {
-            Some(s) => {
-                // Once latched, a frozen reading keeps the fault present even with
-                // the bridge off (no drive), so it cannot be cleared until the
-                // reading moves again.
-                let watching = obs.drive >= s.min_drive || self.latched.contains(Fault::SensorStuck);
-                self.stuck_count = if self.frozen(obs.counts) && watching {
-                    self.stuck_count.saturating_add(1)
-                } else {
-                    0
-                };
-                self.stuck_count >= s.ticks
-            }
-            None => false,
-        };
-        self.last_counts = obs.counts as i32;
-
         let bus = obs.bus_v;
         let bus_ok = bus.is_finite();
         let (speed_bad, speed_high) = match obs.speed_rad_s {
@@ -502,24 +494,60 @@ impl Supervisor {
             ),
             None => (false, false),
         };
+        let over = current_ok && i.abs() > self.config.overcurrent.threshold_a;
+        self.judge(&Verdict {
+            present: FaultSet::EMPTY
+                .with_if(Fault::Overcurrent, over)
+                .with_if(Fault::Overload, still_hot || hot_trip)
+                .with_if(Fault::CurrentInvalid, !current_ok)
+                .with_if(Fault::SensorRail, obs.at_rail)
+                .with_if(Fault::BusUndervoltage, bus_ok && bus < self.config.bus.min_v)
+                .with_if(Fault::BusOvervoltage, bus_ok && bus > self.config.bus.max_v)
+                .with_if(Fault::BusInvalid, !bus_ok)
+                .with_if(Fault::SpeedInvalid, speed_bad)
+                .with_if(Fault::SpeedImplausible, speed_high),
+            hot_trip,
+            counts: obs.counts,
+            driven: self.config.stuck.is_some_and(|s| obs.drive >= s.min_drive),
+        })
+    }
 
-        self.present = FaultSet::EMPTY
-            .with_if(Fault::Overcurrent, over)
-            .with_if(Fault::Overload, still_hot || hot_trip)
-            .with_if(Fault::CurrentInvalid, !current_ok)
-            .with_if(Fault::SensorRail, obs.at_rail)
-            .with_if(Fault::SensorStuck, stuck_trip)
-            .with_if(Fault::BusUndervoltage, bus_ok && bus < self.config.bus.min_v)
-            .with_if(Fault::BusOvervoltage, bus_ok && bus > self.config.bus.max_v)
-            .with_if(Fault::BusInvalid, !bus_ok)
-            .with_if(Fault::SpeedInvalid, speed_bad)
-            .with_if(Fault::SpeedImplausible, speed_high);
+    /// Counts, latches and reports one tick's verdict: the part of the check
+    /// the float and the fixed-point loops share (each reads its own numbers
+    /// into a [`Verdict`]). Returns the latched set after it.
+    #[inline(always)]
+    pub(crate) fn judge(&mut self, v: &Verdict) -> FaultSet {
+        let over = v.present.contains(Fault::Overcurrent);
+        self.over_count = if over {
+            self.over_count.saturating_add(1)
+        } else {
+            0
+        };
+        let over_trip = self.over_count >= self.config.overcurrent.samples;
+
+        let stuck_trip = match self.config.stuck {
+            Some(s) => {
+                // Once latched, a frozen reading keeps the fault present even with
+                // the bridge off (no drive), so it cannot be cleared until the
+                // reading moves again.
+                let watching = v.driven || self.latched.contains(Fault::SensorStuck);
+                self.stuck_count = if self.frozen(v.counts) && watching {
+                    self.stuck_count.saturating_add(1)
+                } else {
+                    0
+                };
+                self.stuck_count >= s.ticks
+            }
+            None => false,
+        };
+        self.last_counts = v.counts as i32;
+        self.present = v.present.with_if(Fault::SensorStuck, stuck_trip);
 
         // Everything present trips at once, except overcurrent (needs its count) and
         // overload (needs the trip level, not just "warm").
         let mut tripped = FaultSet(self.present.0 & !(Fault::Overcurrent as u16 | Fault::Overload as u16));
         tripped = tripped.with_if(Fault::Overcurrent, over_trip);
-        tripped = tripped.with_if(Fault::Overload, hot_trip);
+        tripped = tripped.with_if(Fault::Overload, v.hot_trip);
         if self.latched.is_empty() && !tripped.is_empty() {
             self.first = tripped.earliest();
         }
