@@ -399,8 +399,16 @@ impl QuietWindow {
 /// the readings form one interval around the offset; each edge is found by
 /// bisection with the very expressions the full check evaluates.
 fn quiet_band(sense: &CurrentSense, threshold_a: f32) -> Option<(u16, u16)> {
+    count_band(sense, |c| {
+        !sense.at_rail(c) && sense.to_amperes(c).abs() <= threshold_a
+    })
+}
+
+/// The readings `c` around the sensor's offset for which `ok(c)` holds, as
+/// `(lowest, span)`, for an `ok` that is false, then true, then false over
+/// the ADC's range (one interval); `None` when the offset's reading fails it.
+pub(crate) fn count_band(sense: &CurrentSense, ok: impl Fn(u16) -> bool) -> Option<(u16, u16)> {
     let fs = sense.full_scale_counts();
-    let ok = |c: u16| !sense.at_rail(c) && sense.to_amperes(c).abs() <= threshold_a;
     let centre = libm::roundf(sense.offset_counts());
     let centre = if centre < 0.0 {
         0
@@ -807,6 +815,8 @@ impl CurrentLoop {
         self.last
     }
 }
+
+pub mod fixed;
 
 #[cfg(test)]
 mod quiet_path_tests;

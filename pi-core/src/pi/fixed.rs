@@ -190,11 +190,20 @@ impl FixedScale {
         self.q27("voltage_full_scale_v", v / self.voltage_v, self.voltage_v)
     }
 
-    /// A current in Q27 of the current full scale, refused beyond 16 full
-    /// scales (naming `current_full_scale_a`).
-    #[allow(dead_code)]
-    pub(crate) fn amperes(&self, a: f32) -> Result<Fixed, ConfigError> {
-        self.q27("current_full_scale_a", a / self.current_a, self.current_a)
+    /// A current limit in Q27 of the current full scale, rounded inward
+    /// (`up` for a lower limit, so a limited value never passes the float
+    /// limit); refused beyond 16 full scales (naming `current_full_scale_a`).
+    pub(crate) fn amperes_inward(&self, a: f32, up: bool) -> Result<Fixed, ConfigError> {
+        let Fixed(q) = self.q27("current_full_scale_a", a / self.current_a, self.current_a)?;
+        let exact = a / self.current_a * (1u32 << (15 + GUARD_BITS)) as f32;
+        let q = if up && (q as f32) < exact {
+            q.saturating_add(1)
+        } else if !up && (q as f32) > exact {
+            q.saturating_sub(1)
+        } else {
+            q
+        };
+        Ok(Fixed(q))
     }
 
     fn q27(&self, field: &'static str, share: f32, full_scale: f32) -> Result<Fixed, ConfigError> {
@@ -299,21 +308,28 @@ impl FixedPi {
     /// [`super::PiController::update_within`]).
     #[inline]
     pub fn update_within(&mut self, setpoint_q15: i16, measured_q15: i16, min_q15: i16, max_q15: i16) -> i16 {
-        let lo = self.min.max(Fixed::from_q15(min_q15));
-        let hi = self.max.min(Fixed::from_q15(max_q15));
+        self.step_within(
+            Fixed::from_q15(setpoint_q15),
+            Fixed::from_q15(measured_q15),
+            Fixed::from_q15(min_q15),
+            Fixed::from_q15(max_q15),
+        )
+        .to_q15()
+    }
+
+    /// One step in Q27 with limits for this step intersected with the
+    /// configured ones (as [`FixedPi::update_within`]).
+    #[inline(always)]
+    pub(crate) fn step_within(&mut self, r: Fixed, y: Fixed, lo: Fixed, hi: Fixed) -> Fixed {
+        let lo = self.min.max(lo);
+        let hi = self.max.min(hi);
         let (lo, hi) = if lo <= hi {
             (lo, hi)
         } else {
             let v = hi.max(self.min);
             (v, v)
         };
-        self.step(
-            Fixed::from_q15(setpoint_q15),
-            Fixed::from_q15(measured_q15),
-            lo,
-            hi,
-        )
-        .to_q15()
+        self.step(r, y, lo, hi)
     }
 
     /// One step in Q27 with limits `lo <= hi` inside the configured range.

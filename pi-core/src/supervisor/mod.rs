@@ -35,6 +35,7 @@
 //! added to the configuration when wanted; [`SupervisorConfig::protections`]
 //! says which are on, so a start-up log or a review can show what is off.
 
+pub mod fixed_heat;
 pub mod thermal;
 
 use core::fmt;
@@ -458,10 +459,20 @@ impl Supervisor {
             Some(t) => Some(ThermalModel::new(t, period_s)?),
             None => None,
         };
-        let stuck_band = config.stuck.map_or(-1, |s| s.band_counts as i32);
         Ok(Self {
-            config,
             thermal,
+            ..Self::counting(config)
+        })
+    }
+
+    /// A supervisor that only counts and latches (no float thermal model
+    /// of its own): the fixed-point loop keeps its heat itself and passes
+    /// the verdict to [`Supervisor::judge`].
+    pub(crate) fn counting(config: SupervisorConfig) -> Self {
+        let stuck_band = config.stuck.map_or(-1, |s| s.band_counts as i32);
+        Self {
+            config,
+            thermal: None,
             over_count: 0,
             stuck_count: 0,
             last_counts: NO_READING,
@@ -470,7 +481,7 @@ impl Supervisor {
             latched: FaultSet::EMPTY,
             first: None,
             settled: true,
-        })
+        }
     }
 
     /// Looks at one tick and returns the latched set after it.

@@ -325,6 +325,16 @@ impl ThermalModel {
         self.heat
     }
 
+    /// Control ticks per thermal step.
+    pub(crate) fn ticks_per_step(&self) -> u16 {
+        self.ticks_per_step
+    }
+
+    /// The step's weight `1 - exp(-T / tau)`.
+    pub(crate) fn alpha(&self) -> f32 {
+        self.alpha
+    }
+
     /// The trip level `trip_multiple^2` the heat trips at.
     pub fn trip_level(&self) -> f32 {
         self.trip_level

@@ -25,6 +25,7 @@ use pi_core::excitation::{Excitation, Waveform};
 use pi_core::capture::Capture;
 use pi_core::heapless::spsc::Queue;
 use pi_core::link::{Link, LoopBoard};
+use pi_core::current_loop::fixed::{FixedCommand, FixedLoop, FixedLoopConfig, FixedTickInput};
 use pi_core::pi::fixed::{FixedPi, FixedRetune, FixedScale};
 use pi_core::prelude::*;
 use pi_core::{Observation, OffsetCalibration, OffsetProgress, SetpointShaper, Supervisor};
@@ -239,6 +240,64 @@ fn bare_pi() {
     }
 }
 
+/// The fixed-point loop as a Cortex-M0 firmware runs it: built at start-up
+/// from a float configuration, commands prepared in the main loop, the tick
+/// on opaque ADC readings.
+fn fixed_loop() {
+    let Some(cl) = build() else {
+        return;
+    };
+    let base = *cl.config();
+    // The float configuration without its feedforward and speed limit (the
+    // fixed loop refuses them), rebuilt from its parts.
+    let Some(sup) = (|| {
+        let s = base.supervisor();
+        let mut c = SupervisorConfig::new(s.overcurrent(), s.bus());
+        if let Some(t) = s.thermal() {
+            c = c.with_thermal(t);
+        }
+        if let Some(st) = s.stuck_detection() {
+            c = c.with_stuck_detection(st);
+        }
+        Some(c)
+    })() else {
+        return;
+    };
+    let Ok(plain) = LoopConfig::new(*base.sense(), *base.setpoint(), sup, *base.pi(), *base.duty()) else {
+        return;
+    };
+    let Ok(config) = FixedLoopConfig::new(plain, black_box(12), black_box(40.0 / 4096.0)) else {
+        return;
+    };
+    let Ok(mut fl) = FixedLoop::new(config) else {
+        return;
+    };
+    let retune = config.retune(base.pi().gains()).ok();
+    for k in 0..black_box(1000u32) {
+        let command = match black_box(k % 6) {
+            0 => FixedCommand::Enable,
+            1 => FixedCommand::SetCurrent(config.current_q15(black_box(1.5))),
+            2 => FixedCommand::ClearFaults,
+            3 => FixedCommand::Disable,
+            _ => match retune {
+                Some(r) => FixedCommand::Retune(r),
+                None => FixedCommand::Disable,
+            },
+        };
+        black_box(fl.apply(command).is_ok());
+        let out = fl.tick(FixedTickInput {
+            current_counts: black_box(2100),
+            bus_counts: black_box(2458),
+        });
+        black_box(out.compare(black_box(2399)));
+        black_box(fl.state());
+        black_box(fl.supervisor().latched());
+    }
+    if let Some(h) = fl.heat_mut() {
+        black_box(h.set_heat(black_box(1.1)).is_ok());
+    }
+}
+
 /// The other pieces on their own, as a firmware that assembles its own loop
 /// would use them: two-point calibration, the supervisor, the setpoint shaper,
 /// the duty mapping.
@@ -285,6 +344,7 @@ pub extern "C" fn _start() -> ! {
         }
     };
     bare_pi();
+    fixed_loop();
     identify_winding();
     parts_alone();
     let mut queue: Queue<Command, 8> = Queue::new();

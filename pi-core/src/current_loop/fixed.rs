@@ -1,0 +1,581 @@
+//! The assembled current loop on integers, for cores without an FPU: the
+//! float loop's configuration, states, commands and fault rules, with every
+//! per-tick step in integer arithmetic.
+//!
+//! [`FixedLoop::tick`] takes the current ADC's reading and the bus ADC's
+//! reading, both raw counts, and returns a [`FixedDrive`] (duty in Q15). In
+//! order, as in [`crate::current_loop`]:
+//!
+//! 1. calibration: counts to a Q15 current, `(counts - offset) * 2^(15 - bits)`
+//!    (the offset kept to 1 / 2^(15 - bits) of a count): exact, so the current's
+//!    full scale is the sensor's own, `|amps_per_count| 2^bits`;
+//! 2. supervision in counts: the overcurrent threshold, the rails and the bus
+//!    window are bands of readings found once, at construction, with the float
+//!    loop's own expressions, so each trips on the same reading as the float
+//!    loop; the stuck detector is the same integer code; the I^2t model is
+//!    [`FixedHeat`] (its trip tick against the float model's is in its
+//!    module notes); the counting and latching are the float supervisor's own
+//!    ([`crate::supervisor::Supervisor`]);
+//! 3. setpoint: limited and slewed in Q27 of the current full scale;
+//! 4. PI: [`FixedPi`], the float PI's law on integers, limited to what the bus
+//!    gives now (`max_duty * bus`) intersected with the configured limits;
+//! 5. volts to duty: `|v| / bus` by one integer division, limited to the
+//!    duty range; a bus below the duty mapping's `min_bus_v` gives the safe
+//!    command.
+//!
+//! The voltage's full scale is the bus ADC's (`bus_v_per_count 2^bus_bits`),
+//! so the duty is a ratio of two numbers on one scale.
+//!
+//! What the float loop has and this one has not, refused by name when
+//! configured: feedforward, a speed reading (and so the speed checks), and
+//! excitations. No reading is ever "no number" here, so the invalid-reading
+//! causes cannot occur.
+//!
+//! Commands carry integers ([`FixedCommand`]): the setpoint in Q15
+//! ([`FixedLoopConfig::current_q15`]) and gains converted ahead of time
+//! ([`FixedLoopConfig::retune`]), so the interrupt that applies them does no
+//! float arithmetic.
+
+use crate::error::{ClearRefused, CommandError, ConfigError, Requirement, positive};
+use crate::fault::{Fault, FaultSet};
+use crate::output::{Direction, DriveCommand};
+use crate::pi::PiGains;
+use crate::pi::fixed::{Fixed, FixedPi, FixedRetune, FixedScale, GUARD_BITS};
+use crate::supervisor::fixed_heat::FixedHeat;
+use crate::supervisor::{Supervisor, Verdict};
+
+use super::{LoopConfig, LoopState, count_band};
+
+/// The float loop's validated configuration with the bus ADC's scale, and
+/// the integer constants derived from them.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct FixedLoopConfig {
+    base: LoopConfig,
+    scale: FixedScale,
+    bus_v_per_count: f32,
+    /// `2^(15 - bits)` of each ADC.
+    current_shift: u32,
+    bus_shift: u32,
+}
+
+impl FixedLoopConfig {
+    /// The float configuration `base` run on integers, with a bus ADC of
+    /// `bus_adc_bits` (2 to 15) reading `bus_v_per_count` volts per count.
+    ///
+    /// Refused by name: a current ADC of 16 bits (`adc_bits`), feedforward
+    /// (`resistance_ohm`, `back_emf_v_s_per_rad`), a speed limit
+    /// (`max_speed_rad_s`: this loop reads no speed), a bus window beyond the
+    /// bus ADC (`max_v`), and gains too large for the fixed-point PI
+    /// (`kp_v_per_a`: every coefficient must be below 8 voltage full scales
+    /// per current full scale).
+    pub fn new(base: LoopConfig, bus_adc_bits: u8, bus_v_per_count: f32) -> Result<Self, ConfigError> {
+        let sense = base.sense();
+        let fs = sense.full_scale_counts() as u32 + 1;
+        let bits = fs.trailing_zeros();
+        if bits > 15 {
+            return Err(ConfigError::new(
+                "adc_bits",
+                bits as f32,
+                Requirement::Within { min: 2.0, max: 15.0 },
+            ));
+        }
+        if !(2..=15).contains(&bus_adc_bits) {
+            return Err(ConfigError::new(
+                "bus_adc_bits",
+                bus_adc_bits as f32,
+                Requirement::Within { min: 2.0, max: 15.0 },
+            ));
+        }
+        let bus_v_per_count = positive("bus_v_per_count", bus_v_per_count)?;
+        let ff = base.feedforward();
+        if ff.resistance_ohm() != 0.0 {
+            return Err(ConfigError::new(
+                "resistance_ohm",
+                ff.resistance_ohm(),
+                Requirement::Below("any value: the fixed-point loop has no feedforward"),
+            ));
+        }
+        if ff.back_emf_v_s_per_rad() != 0.0 {
+            return Err(ConfigError::new(
+                "back_emf_v_s_per_rad",
+                ff.back_emf_v_s_per_rad(),
+                Requirement::Below("any value: the fixed-point loop has no feedforward"),
+            ));
+        }
+        if let Some(limit) = base.supervisor().speed_limit() {
+            return Err(ConfigError::new(
+                "max_speed_rad_s",
+                limit.max_speed_rad_s(),
+                Requirement::Below("any value: the fixed-point loop reads no speed"),
+            ));
+        }
+        let bus_fs_counts = (1u32 << bus_adc_bits) - 1;
+        let bus_max_v = base.supervisor().bus().max_v();
+        if bus_max_v >= bus_fs_counts as f32 * bus_v_per_count {
+            return Err(ConfigError::new(
+                "max_v",
+                bus_max_v,
+                Requirement::Below("the bus ADC's full scale, bus_v_per_count x (2^bus_adc_bits - 1)"),
+            ));
+        }
+        let current_fs_a = libm::fabsf(sense.amps_per_count()) * fs as f32;
+        let voltage_fs_v = bus_v_per_count * (1u32 << bus_adc_bits) as f32;
+        let scale = FixedScale::new(current_fs_a, voltage_fs_v)?;
+        let config = Self {
+            base,
+            scale,
+            bus_v_per_count,
+            current_shift: 15 - bits,
+            bus_shift: 15 - bus_adc_bits as u32,
+        };
+        // The PI and the heat model refuse what they cannot hold.
+        config.pi()?;
+        if let Some(t) = base.supervisor().thermal() {
+            FixedHeat::new(t, base.period_s(), current_fs_a)?;
+        }
+        Ok(config)
+    }
+
+    fn pi(&self) -> Result<FixedPi, ConfigError> {
+        FixedPi::new(*self.base.pi(), self.scale).map_err(|e| self.gain_error(e))
+    }
+
+    /// A coefficient too large names the gain (the full scales are the ADCs').
+    fn gain_error(&self, e: ConfigError) -> ConfigError {
+        if e.field == "voltage_full_scale_v" {
+            ConfigError::new(
+                "kp_v_per_a",
+                self.base.pi().gains().kp_v_per_a(),
+                Requirement::Below("8 x the bus ADC's full scale over the current sensor's full scale"),
+            )
+        } else {
+            e
+        }
+    }
+
+    /// The float configuration it was made from.
+    pub fn base(&self) -> &LoopConfig {
+        &self.base
+    }
+
+    /// The full scales: the current sensor's and the bus ADC's.
+    pub fn scale(&self) -> &FixedScale {
+        &self.scale
+    }
+
+    /// Volts of one bus ADC count.
+    pub fn bus_v_per_count(&self) -> f32 {
+        self.bus_v_per_count
+    }
+
+    /// A current in Q15 of the current full scale, saturated to `i16`
+    /// (for [`FixedCommand::SetCurrent`], outside the interrupt).
+    #[allow(clippy::manual_clamp)]
+    pub fn current_q15(&self, current_a: f32) -> i16 {
+        let q = libm::roundf(current_a / self.scale.current_full_scale_a() * 32768.0);
+        // A NaN becomes 0.
+        if q.is_nan() {
+            0
+        } else {
+            q.max(i16::MIN as f32).min(i16::MAX as f32) as i16
+        }
+    }
+
+    /// New gains converted ahead of time for [`FixedCommand::Retune`];
+    /// refused as [`FixedLoopConfig::new`] refuses gains.
+    pub fn retune(&self, gains: PiGains) -> Result<FixedRetune, ConfigError> {
+        FixedRetune::new(self.base.pi(), gains, &self.scale).map_err(|e| self.gain_error(e))
+    }
+}
+
+/// The inputs of one tick: raw ADC readings.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct FixedTickInput {
+    /// The current-sense ADC reading.
+    pub current_counts: u16,
+    /// The bus-voltage ADC reading.
+    pub bus_counts: u16,
+}
+
+/// A drive command with the duty in Q15.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct FixedDrive {
+    /// Duty, Q15 (32768 would be 1; at most the mapping's `max_duty`).
+    pub duty_q15: u16,
+    /// Polarity.
+    pub direction: Direction,
+    /// Bridge enabled.
+    pub enabled: bool,
+}
+
+impl FixedDrive {
+    /// Bridge disabled, duty 0.
+    pub const SAFE: FixedDrive = FixedDrive {
+        duty_q15: 0,
+        direction: Direction::Forward,
+        enabled: false,
+    };
+
+    /// The duty as a compare value for a PWM timer counting to `period`
+    /// (rounded down).
+    #[inline(always)]
+    pub fn compare(&self, period: u16) -> u16 {
+        ((self.duty_q15 as u32 * period as u32) >> 15) as u16
+    }
+
+    /// The same command with the duty as a fraction (for simulation and
+    /// telemetry, where floats are cheap).
+    pub fn to_drive_command(&self) -> DriveCommand {
+        DriveCommand {
+            duty: self.duty_q15 as f32 / 32768.0,
+            direction: self.direction,
+            enabled: self.enabled,
+        }
+    }
+}
+
+/// A request from the main loop, in integers.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub enum FixedCommand {
+    /// New target current, Q15 of the current full scale; limited and slewed.
+    /// Refused while faulted.
+    SetCurrent(i16),
+    /// New gains, applied bumplessly at the next tick.
+    Retune(FixedRetune),
+    /// Start closed-loop control; refused while faults are latched.
+    Enable,
+    /// Stop: safe command, PI reset, setpoint 0.
+    Disable,
+    /// Clear latched faults (refused while a cause is present); leads to `Disabled`.
+    ClearFaults,
+}
+
+/// Whether a setpoint was taken as asked or limited.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum FixedAcceptance {
+    /// Taken as asked.
+    Exact,
+    /// Limited to the setpoint range.
+    Limited {
+        /// The target applied, Q15.
+        applied_q15: i16,
+    },
+}
+
+/// The assembled fixed-point loop.
+#[derive(Clone, Debug)]
+pub struct FixedLoop {
+    config: FixedLoopConfig,
+    supervisor: Supervisor,
+    heat: Option<FixedHeat>,
+    pi: FixedPi,
+    state: LoopState,
+    /// `q15 = counts * count_step - offset_q` (the sign of the amplifier in both).
+    count_step: i32,
+    offset_q: i32,
+    /// Readings within the overcurrent threshold: `c.wrapping_sub(low) <= span`.
+    over_low: u16,
+    over_span: u16,
+    /// Bus readings inside the window.
+    bus_low: u16,
+    bus_high: u16,
+    /// The lowest bus reading the duty mapping drives on.
+    min_bus: u16,
+    max_duty_q15: u32,
+    /// The stuck detector's `min_drive` in Q15 (above any duty without it).
+    stuck_drive_q15: u32,
+    sp_min: Fixed,
+    sp_max: Fixed,
+    sp_step: Fixed,
+    target: Fixed,
+    setpoint: Fixed,
+    last: FixedDrive,
+    last_current_q15: i16,
+    last_volts: Fixed,
+}
+
+impl FixedLoop {
+    /// A disabled loop with nothing latched.
+    pub fn new(config: FixedLoopConfig) -> Result<Self, ConfigError> {
+        let base = &config.base;
+        let sense = base.sense();
+        let sup = base.supervisor();
+        let period_s = base.period_s();
+        let step = (1i32 << config.current_shift) * if sense.amps_per_count() < 0.0 { -1 } else { 1 };
+        let offset_q = libm::roundf(sense.offset_counts() * step as f32) as i32;
+        let threshold = sup.overcurrent().threshold_a();
+        let (over_low, over_span) =
+            count_band(sense, |c| sense.to_amperes(c).abs() <= threshold).ok_or(ConfigError::new(
+                "threshold_a",
+                threshold,
+                Requirement::Above("the current the sensor reads at its offset"),
+            ))?;
+        // The bus readings the float loop would see as `counts * bus_v_per_count`.
+        let vpc = config.bus_v_per_count;
+        let first = |ok: &dyn Fn(u16) -> bool| -> u16 {
+            let (mut lo, mut hi) = (0u16, u16::MAX);
+            while lo < hi {
+                let mid = lo + (hi - lo) / 2;
+                if ok(mid) {
+                    hi = mid;
+                } else {
+                    lo = mid + 1;
+                }
+            }
+            lo
+        };
+        let window = sup.bus();
+        let bus_low = first(&|c| c as f32 * vpc >= window.min_v());
+        let bus_high = first(&|c| c as f32 * vpc > window.max_v()) - 1;
+        let duty = base.duty();
+        let min_bus = first(&|c| c as f32 * vpc >= duty.min_bus_v());
+        let q15 = |x: f32| libm::roundf(x * 32768.0) as u32;
+        let stuck_drive_q15 = sup.stuck_detection().map_or(u32::MAX, |s| {
+            // The least Q15 duty at or above min_drive.
+            libm::ceilf(s.min_drive() * 32768.0) as u32
+        });
+        let scale = config.scale;
+        let limits = base.setpoint();
+        let sp_min = scale.amperes_inward(limits.min_a(), true)?;
+        let sp_max = scale.amperes_inward(limits.max_a(), false)?;
+        let slew = limits.slew_a_per_s() * period_s / scale.current_full_scale_a() * (1u32 << 27) as f32;
+        let sp_step = Fixed(if slew >= i32::MAX as f32 {
+            i32::MAX
+        } else if slew < 1.0 {
+            1
+        } else {
+            libm::roundf(slew) as i32
+        });
+        let heat = match sup.thermal() {
+            Some(t) => Some(FixedHeat::new(t, period_s, scale.current_full_scale_a())?),
+            None => None,
+        };
+        Ok(Self {
+            supervisor: Supervisor::counting(*sup),
+            heat,
+            pi: config.pi()?,
+            state: LoopState::Disabled,
+            count_step: step,
+            offset_q,
+            over_low,
+            over_span,
+            bus_low,
+            bus_high,
+            min_bus,
+            max_duty_q15: q15(duty.max_duty()).min(32767),
+            stuck_drive_q15,
+            sp_min,
+            sp_max,
+            sp_step,
+            target: Fixed(0),
+            setpoint: Fixed(0),
+            last: FixedDrive::SAFE,
+            last_current_q15: 0,
+            last_volts: Fixed(0),
+            config,
+        })
+    }
+
+    /// One control tick; call it once per control period from the interrupt.
+    /// Never panics, allocates or blocks; no float arithmetic.
+    pub fn tick(&mut self, input: FixedTickInput) -> FixedDrive {
+        let c = input.current_counts;
+        let i = (c as i32 * self.count_step - self.offset_q)
+            .max(i16::MIN as i32)
+            .min(i16::MAX as i32) as i16;
+        self.last_current_q15 = i;
+        let b = input.bus_counts;
+        let (hot_trip, still_hot) = match &mut self.heat {
+            Some(h) => (h.tick(i), h.still_hot()),
+            None => (false, false),
+        };
+        let latched = self.supervisor.judge(&Verdict {
+            present: FaultSet::EMPTY
+                .with_if(Fault::Overcurrent, c.wrapping_sub(self.over_low) > self.over_span)
+                .with_if(Fault::Overload, still_hot || hot_trip)
+                .with_if(Fault::SensorRail, self.config.base.sense().at_rail(c))
+                .with_if(Fault::BusUndervoltage, b < self.bus_low)
+                .with_if(Fault::BusOvervoltage, b > self.bus_high),
+            hot_trip,
+            counts: c,
+            driven: self.last.duty_q15 as u32 >= self.stuck_drive_q15,
+        });
+        let command = if !latched.is_empty() {
+            if self.state != LoopState::Faulted {
+                self.stop();
+                self.state = LoopState::Faulted;
+            }
+            FixedDrive::SAFE
+        } else if self.state == LoopState::Running {
+            self.run(i, b)
+        } else {
+            FixedDrive::SAFE
+        };
+        self.last = command;
+        command
+    }
+
+    /// The running tick: setpoint, PI within what the bus gives, duty.
+    #[inline(always)]
+    fn run(&mut self, current_q15: i16, bus_counts: u16) -> FixedDrive {
+        // Slew toward the target.
+        let r = self
+            .target
+            .0
+            .max(self.setpoint.0.saturating_sub(self.sp_step.0))
+            .min(self.setpoint.0.saturating_add(self.sp_step.0));
+        self.setpoint = Fixed(r);
+        let bus_q15 = (bus_counts as u32) << (self.config.bus_shift & 31);
+        let good_bus = bus_counts >= self.min_bus;
+        // What the bus gives now, Q27 (0 below min_bus_v, as the float mapping).
+        let available = if good_bus {
+            ((bus_q15 * self.max_duty_q15) >> 15) << GUARD_BITS
+        } else {
+            0
+        } as i32;
+        let v = self.pi.step_within(
+            Fixed(r),
+            Fixed::from_q15(current_q15),
+            Fixed(-available),
+            Fixed(available),
+        );
+        self.last_volts = v;
+        let v = v.to_q15() as i32;
+        let magnitude = v.unsigned_abs() << 15;
+        let duty = match magnitude.checked_div(bus_q15) {
+            Some(d) if good_bus => d.min(self.max_duty_q15),
+            _ => return FixedDrive::SAFE,
+        };
+        FixedDrive {
+            duty_q15: duty as u16,
+            direction: if v < 0 {
+                Direction::Reverse
+            } else {
+                Direction::Forward
+            },
+            enabled: true,
+        }
+    }
+
+    fn stop(&mut self) {
+        self.pi.reset();
+        self.target = Fixed(0);
+        self.setpoint = Fixed(0);
+        self.last_volts = Fixed(0);
+    }
+
+    /// Carries out a command from the main loop. On error nothing changed.
+    pub fn apply(&mut self, command: FixedCommand) -> Result<FixedAcceptance, CommandError> {
+        match command {
+            FixedCommand::SetCurrent(q) => {
+                if self.state == LoopState::Faulted {
+                    return Err(CommandError::Faulted(self.supervisor.latched()));
+                }
+                let asked = Fixed::from_q15(q);
+                let applied = asked.0.max(self.sp_min.0).min(self.sp_max.0);
+                self.target = Fixed(applied);
+                if applied == asked.0 {
+                    Ok(FixedAcceptance::Exact)
+                } else {
+                    Ok(FixedAcceptance::Limited {
+                        applied_q15: Fixed(applied).to_q15(),
+                    })
+                }
+            }
+            FixedCommand::Retune(retune) => {
+                self.pi.retune(&retune);
+                Ok(FixedAcceptance::Exact)
+            }
+            FixedCommand::Enable => {
+                let latched = self.supervisor.latched();
+                if !latched.is_empty() {
+                    return Err(CommandError::Faulted(latched));
+                }
+                if self.state != LoopState::Running {
+                    self.pi.reset();
+                    self.state = LoopState::Running;
+                }
+                Ok(FixedAcceptance::Exact)
+            }
+            FixedCommand::Disable => {
+                if self.state == LoopState::Running {
+                    self.stop();
+                    self.state = LoopState::Disabled;
+                    self.last = FixedDrive::SAFE;
+                }
+                Ok(FixedAcceptance::Exact)
+            }
+            FixedCommand::ClearFaults => {
+                self.supervisor
+                    .clear()
+                    .map_err(|e: ClearRefused| CommandError::ClearRefused(e))?;
+                if self.state == LoopState::Faulted {
+                    self.state = LoopState::Disabled;
+                }
+                Ok(FixedAcceptance::Exact)
+            }
+        }
+    }
+
+    /// The present state.
+    pub fn state(&self) -> LoopState {
+        self.state
+    }
+
+    /// The supervisor (present and latched causes, the first one).
+    pub fn supervisor(&self) -> &Supervisor {
+        &self.supervisor
+    }
+
+    /// The I^2t model, if configured.
+    pub fn heat(&self) -> Option<&FixedHeat> {
+        self.heat.as_ref()
+    }
+
+    /// The I^2t model for setting its heat after a reset, if configured.
+    pub fn heat_mut(&mut self) -> Option<&mut FixedHeat> {
+        self.heat.as_mut()
+    }
+
+    /// The PI controller.
+    pub fn pi(&self) -> &FixedPi {
+        &self.pi
+    }
+
+    /// The configuration.
+    pub fn config(&self) -> &FixedLoopConfig {
+        &self.config
+    }
+
+    /// The last reading as Q15 of the current full scale.
+    pub fn last_current_q15(&self) -> i16 {
+        self.last_current_q15
+    }
+
+    /// The slewed setpoint the PI saw at the last tick, Q27 of the current
+    /// full scale.
+    pub fn setpoint(&self) -> Fixed {
+        self.setpoint
+    }
+
+    /// The target the setpoint approaches, Q27 of the current full scale.
+    pub fn target(&self) -> Fixed {
+        self.target
+    }
+
+    /// The volts asked for at the last tick, Q27 of the voltage full scale.
+    pub fn commanded(&self) -> Fixed {
+        self.last_volts
+    }
+
+    /// The last drive command.
+    pub fn last_command(&self) -> FixedDrive {
+        self.last
+    }
+}
+
+#[cfg(test)]
+mod tests;
