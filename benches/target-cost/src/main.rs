@@ -23,6 +23,7 @@ use core::panic::PanicInfo;
 
 use pi_core::capture::{Capture, CaptureSpec, Trigger};
 use pi_core::design::{RlPlant, Sampling, Spec, discrete};
+use pi_core::current_loop::fixed::{FixedCommand, FixedDrive, FixedLoop, FixedLoopConfig, FixedTickInput};
 use pi_core::pi::fixed::{FixedPi, FixedScale};
 use pi_core::prelude::*;
 
@@ -158,6 +159,13 @@ fn probe_loop_tick(cl: &mut CurrentLoop, input: &TickInput) -> DriveCommand {
     cl.tick(input)
 }
 
+/// One tick of the assembled fixed-point loop.
+#[inline(never)]
+#[unsafe(no_mangle)]
+fn probe_fixed_loop_tick(cl: &mut FixedLoop, input: FixedTickInput) -> FixedDrive {
+    cl.tick(input)
+}
+
 /// One tick's capture call, after the tick.
 #[inline(never)]
 #[unsafe(no_mangle)]
@@ -210,6 +218,15 @@ fn tick_call(cl: &mut CurrentLoop, counts: u16, bus_v: f32) -> DriveCommand {
     measure(|| probe_loop_tick(black_box(cl), &input))
 }
 
+/// One fixed-point loop tick through the probe, with opaque inputs.
+fn fixed_tick_call(cl: &mut FixedLoop, counts: u16, bus_counts: u16) -> FixedDrive {
+    let input = black_box(FixedTickInput {
+        current_counts: counts,
+        bus_counts,
+    });
+    measure(|| probe_fixed_loop_tick(black_box(cl), input))
+}
+
 /// A tick of the loop (not measured), then its capture call (measured).
 fn capture_call(cap: &mut Capture<CAPTURE>, cl: &mut CurrentLoop, counts: u16) {
     let input = black_box(TickInput {
@@ -252,6 +269,27 @@ fn demo_loop() -> Option<CurrentLoop> {
     )
     .ok()?;
     CurrentLoop::new(config).ok()
+}
+
+/// The demo loop on integers, with a 12-bit bus ADC of 40 V full scale.
+fn demo_fixed_loop() -> Option<FixedLoop> {
+    let base = *demo_loop()?.config();
+    let config = FixedLoopConfig::new(base, 12, black_box(40.0 / 4096.0)).ok()?;
+    FixedLoop::new(config).ok()
+}
+
+/// Bus counts of 24 V on the demo's bus ADC.
+const BUS_24V: u16 = 2458;
+
+/// As `closed_run`, for the fixed-point loop.
+fn fixed_closed_run(cl: &mut FixedLoop, ticks: u32, i: &mut f32, pending_v: &mut f32) {
+    let (a, gain) = (0.960_9f32, 0.020_57f32);
+    let bus_v = BUS_24V as f32 * 40.0 / 4096.0;
+    for _ in 0..ticks {
+        let cmd = fixed_tick_call(cl, counts_of(*i), BUS_24V);
+        *i = a * *i + gain * *pending_v;
+        *pending_v = cmd.to_drive_command().signed_duty() * bus_v;
+    }
 }
 
 fn demo_pi(aw: AntiWindup, rule: IntegratorRule, limit_v: f32) -> Option<PiConfig> {
@@ -397,6 +435,42 @@ fn main() -> u32 {
     scenario(b"scenario loop_faulted\n", || {
         for _ in 0..20 {
             tick_call(&mut cl, 4095, 24.0); // sensor at the rail: faults on the first tick
+        }
+    });
+    // The same runs on the fixed-point loop (every tick takes its full check).
+    let Some(mut fl) = demo_fixed_loop() else { return 2 };
+    let (mut i, mut pending_v) = (0.0f32, 0.0f32);
+    let q15 = |a: f32| (a / (4096.0 * 0.004_028_32) * 32768.0) as i16;
+    scenario(b"scenario fixed_loop_closed_run\n", || {
+        let _ = fl.apply(FixedCommand::Enable);
+        let _ = fl.apply(FixedCommand::SetCurrent(q15(1.5)));
+        fixed_closed_run(&mut fl, 250, &mut i, &mut pending_v);
+    });
+    scenario(b"scenario fixed_loop_saturated\n", || {
+        let _ = fl.apply(FixedCommand::SetCurrent(q15(4.0)));
+        for _ in 0..40 {
+            fixed_tick_call(&mut fl, counts_of(0.5), BUS_24V);
+        }
+        let _ = fl.apply(FixedCommand::SetCurrent(q15(1.5)));
+        fixed_closed_run(&mut fl, 60, &mut i, &mut pending_v);
+    });
+    scenario(b"scenario fixed_loop_overcurrent_counting\n", || {
+        for _ in 0..4 {
+            fixed_tick_call(&mut fl, counts_of(6.5), BUS_24V);
+            fixed_tick_call(&mut fl, counts_of(6.5), BUS_24V);
+            fixed_tick_call(&mut fl, counts_of(1.5), BUS_24V);
+        }
+    });
+    // A warm winding, through a thermal step (200 ticks).
+    scenario(b"scenario fixed_loop_hot_winding\n", || {
+        if let Some(h) = fl.heat_mut() {
+            let _ = h.set_heat(1.2);
+        }
+        fixed_closed_run(&mut fl, 210, &mut i, &mut pending_v);
+    });
+    scenario(b"scenario fixed_loop_faulted\n", || {
+        for _ in 0..20 {
+            fixed_tick_call(&mut fl, 4095, BUS_24V);
         }
     });
     // The capture beside a running loop: idle, armed and waiting for a

@@ -11,12 +11,14 @@
 //! * The heat `h` is a `u64` in Q32 (`2^32` is the rated steady state):
 //!   resolution `2.3e-10`, finer than the float model's compensated sum
 //!   near the trip level, so the longest accepted `tau` still rises.
-//! * At the end of a step, `q = sum * rho` with `rho = 4 (I_fs / I_r)^2 / N`
-//!   in Q32, and `h += alpha (q - h)`; each product is a 32-bit mantissa
-//!   times a value below `2^48`, taken in two 32 x 32 -> 64 multiplies and
-//!   shifted (no 128-bit arithmetic). `q` is below `2^32 (I_fs / I_r)^2`,
-//!   and the configuration refuses `I_fs / I_r` of 1000 or more, so every
-//!   value stays below `2^52`.
+//! * A step is `h' = (1 - alpha) h + alpha q`, with the mean square
+//!   `q = sum rho` (`rho = 4 (I_fs / I_r)^2 / N` in Q32): the step's first
+//!   tick takes `(1 - alpha) h` (the heat holds still within a step), its
+//!   last adds `sum (alpha rho)`. Each product is a 32-bit mantissa times a
+//!   value below `2^52`, taken as 16 x 16 -> 32 multiplies and shifted,
+//!   rounded down (no 64-bit library multiply). `h` stays below
+//!   `2^32 (I_fs / I_r)^2`, and the configuration refuses `I_fs / I_r` of
+//!   1000 or more, so every value stays below `2^52`.
 //!
 //! It trips on the same thermal step as the float model unless the heat at
 //! that step lies within the two models' rounding of the level: the float
@@ -36,11 +38,15 @@ pub struct FixedHeat {
     sum: u64,
     /// The heat, Q32.
     heat: u64,
+    /// `(1 - alpha) h`, Q32: what the heat keeps of itself over the step,
+    /// computed on the step's first tick (the heat does not change within a
+    /// step), so the step's last tick has one product to take, not two.
+    kept: u64,
     /// The trip level, Q32 (the float model's f32 level, exactly).
     trip: u64,
-    /// `q = sum * rho_m >> rho_s`, Q32.
-    rho_m: u32,
-    rho_s: u32,
+    /// `alpha q = sum * kappa_m >> kappa_s`, Q32 (`kappa = alpha rho`).
+    kappa_m: u32,
+    kappa_s: u32,
     /// `alpha = alpha_m 2^-alpha_s`.
     alpha_m: u32,
     alpha_s: u32,
@@ -49,12 +55,26 @@ pub struct FixedHeat {
 /// `2^32` as the rated steady state.
 const ONE: u64 = 1 << 32;
 
-/// `x * m / 2^s` rounded down, for `x < 2^56` and results below `2^64`:
-/// two 32 x 32 -> 64 multiplies.
+/// `a * b` in full, from four 16 x 16 -> 32 products (the Cortex-M0's
+/// multiply keeps only the low 32 bits; the library's 64-bit multiply
+/// takes about 37 instructions).
+#[inline(always)]
+fn mul_wide(a: u32, b: u32) -> u64 {
+    let (a0, a1) = (a & 0xFFFF, a >> 16);
+    let (b0, b1) = (b & 0xFFFF, b >> 16);
+    let low = a0 * b0;
+    // Both middle products are below 2^32; their sum may carry.
+    let (mid, carry) = (a0 * b1).overflowing_add(a1 * b0);
+    let high = a1 * b1 + ((carry as u32) << 16) + (mid >> 16);
+    let (low, c) = low.overflowing_add(mid << 16);
+    ((high + c as u32) as u64) << 32 | low as u64
+}
+
+/// `x * m / 2^s` rounded down, for `x < 2^56` and results below `2^64`.
 #[inline(always)]
 fn mul_shift(x: u64, m: u32, s: u32) -> u64 {
-    let lo = (x as u32) as u64 * m as u64;
-    let hi = (x >> 32) * m as u64;
+    let lo = mul_wide(x as u32, m);
+    let hi = mul_wide((x >> 32) as u32, m);
     // x m = hi 2^32 + lo.
     if s >= 32 {
         (hi + (lo >> 32)) >> ((s - 32) & 63)
@@ -108,7 +128,7 @@ impl FixedHeat {
                 Requirement::Below("the current full scale times 2^20"),
             )
         };
-        let (rho_m, rho_s) = mantissa(rho).ok_or_else(too_small)?;
+        let (kappa_m, kappa_s) = mantissa(rho * float.alpha() as f64).ok_or_else(too_small)?;
         let (alpha_m, alpha_s) = mantissa(float.alpha() as f64).ok_or(ConfigError::new(
             "tau_s",
             config.tau_s(),
@@ -121,9 +141,10 @@ impl FixedHeat {
             countdown: float.ticks_per_step(),
             sum: 0,
             heat: 0,
+            kept: 0,
             trip,
-            rho_m,
-            rho_s,
+            kappa_m,
+            kappa_s,
             alpha_m,
             alpha_s,
         })
@@ -136,21 +157,28 @@ impl FixedHeat {
         let i = current_q15 as i32;
         self.sum += (i * i) as u32 as u64;
         self.countdown = self.countdown.wrapping_sub(1);
+        if self.countdown == self.ticks_per_step.wrapping_sub(1) {
+            self.keep();
+        }
         if self.countdown == 0 {
             self.step();
         }
         self.tripped()
     }
 
-    /// Ends a thermal step: `h += alpha (q - h)`.
+    /// The step's first tick: `(1 - alpha) h`.
+    #[inline(never)]
+    fn keep(&mut self) {
+        self.kept = self.heat - mul_shift(self.heat, self.alpha_m, self.alpha_s);
+    }
+
+    /// Ends a thermal step: `h = (1 - alpha) h + alpha q`.
     #[inline(never)]
     fn step(&mut self) {
-        let q = mul_shift(self.sum, self.rho_m, self.rho_s);
-        self.heat = if q >= self.heat {
-            self.heat + mul_shift(q - self.heat, self.alpha_m, self.alpha_s)
-        } else {
-            self.heat - mul_shift(self.heat - q, self.alpha_m, self.alpha_s)
-        };
+        if self.ticks_per_step == 1 {
+            self.keep();
+        }
+        self.heat = self.kept + mul_shift(self.sum, self.kappa_m, self.kappa_s);
         self.sum = 0;
         self.countdown = self.ticks_per_step;
     }
@@ -176,6 +204,7 @@ impl FixedHeat {
     pub fn set_heat(&mut self, heat: f32) -> Result<(), ConfigError> {
         let h = non_negative("heat", heat)?;
         self.heat = libm::round(h as f64 * ONE as f64) as u64;
+        self.keep();
         Ok(())
     }
 }

@@ -488,3 +488,21 @@ proptest! {
         }
     }
 }
+
+#[test]
+fn the_quotient_without_a_division_is_within_two_to_the_minus_15() {
+    // Every divisor, numerators across the range (the duty's quotient is at
+    // most 2^15, since |v| never exceeds what the bus gives).
+    for b in 1u32..32768 {
+        for v in [0u32, 1, 7, 100, b / 3, b / 2, b.saturating_sub(1), b].map(|v| v.min(b)) {
+            let exact = (v as u64) << 15;
+            let exact = exact as f64 / b as f64;
+            let q = quotient_q15(v, b) as f64;
+            assert!(
+                (exact - q).abs() <= exact * libm::exp2(-15.0) + 1.0,
+                "{v} / {b}: {q} against {exact}"
+            );
+        }
+    }
+    assert_eq!(quotient_q15(123, 0), 0);
+}
