@@ -398,7 +398,7 @@ impl QuietWindow {
 /// `|to_amperes(c)|` is V-shaped in `c` (rounding keeps each side monotonic), so
 /// the readings form one interval around the offset; each edge is found by
 /// bisection with the very expressions the full check evaluates.
-fn quiet_band(sense: &CurrentSense, threshold_a: f32) -> Option<(u16, u16)> {
+pub(crate) fn quiet_band(sense: &CurrentSense, threshold_a: f32) -> Option<(u16, u16)> {
     count_band(sense, |c| {
         !sense.at_rail(c) && sense.to_amperes(c).abs() <= threshold_a
     })

@@ -157,6 +157,12 @@ impl CurrentSense {
         self.amps_per_count
     }
 
+    /// The readings clear of both rails as `(lowest, span)`: `c` is clear
+    /// exactly when `c.wrapping_sub(lowest) <= span` (as [`CurrentSense::at_rail`]).
+    pub(crate) fn clear_band(&self) -> (u16, u16) {
+        (self.lowest_clear, self.clear_span)
+    }
+
     /// Largest reading the ADC can give (`2^bits - 1`).
     pub fn full_scale_counts(&self) -> u16 {
         self.full_scale_counts

@@ -44,7 +44,7 @@ use crate::pi::fixed::{Fixed, FixedPi, FixedRetune, FixedScale, GUARD_BITS};
 use crate::supervisor::fixed_heat::FixedHeat;
 use crate::supervisor::{Supervisor, Verdict};
 
-use super::{LoopConfig, LoopState, count_band};
+use super::{LoopConfig, LoopState, count_band, quiet_band};
 
 /// The float loop's validated configuration with the bus ADC's scale, and
 /// the integer constants derived from them.
@@ -267,23 +267,14 @@ pub enum FixedAcceptance {
 
 /// The assembled fixed-point loop.
 #[derive(Clone, Debug)]
+// Laid out hot fields first: a Cortex-M0 load reaches only 124 bytes past
+// its base register (62 for a halfword), so the fields every tick reads sit
+// at the front and the configuration at the back.
+#[repr(C)]
 pub struct FixedLoop {
-    config: FixedLoopConfig,
-    supervisor: Supervisor,
-    heat: Option<FixedHeat>,
-    pi: FixedPi,
-    state: LoopState,
     /// `q15 = counts * count_step - offset_q` (the sign of the amplifier in both).
     count_step: i32,
     offset_q: i32,
-    /// Readings within the overcurrent threshold: `c.wrapping_sub(low) <= span`.
-    over_low: u16,
-    over_span: u16,
-    /// Bus readings inside the window.
-    bus_low: u16,
-    bus_high: u16,
-    /// The lowest bus reading the duty mapping drives on.
-    min_bus: u16,
     max_duty_q15: u32,
     /// The stuck detector's `min_drive` in Q15 (above any duty without it).
     stuck_drive_q15: u32,
@@ -292,9 +283,36 @@ pub struct FixedLoop {
     sp_step: Fixed,
     target: Fixed,
     setpoint: Fixed,
-    last: FixedDrive,
-    last_current_q15: i16,
     last_volts: Fixed,
+    /// Readings within the overcurrent threshold: `c.wrapping_sub(low) <= span`.
+    over_low: u16,
+    over_span: u16,
+    /// Readings clear of the rails, likewise (the sensor's own band).
+    rail_low: u16,
+    rail_span: u16,
+    /// Bus readings inside the window.
+    bus_low: u16,
+    bus_high: u16,
+    /// The lowest bus reading the duty mapping drives on.
+    min_bus: u16,
+    /// What a tick may take the short path with: current readings clear of
+    /// the rails and within the threshold, bus readings inside the window
+    /// and at least `min_bus` (`c.wrapping_sub(low) <= span`); `quiet` is
+    /// false when either set is empty.
+    quiet_low: u16,
+    quiet_span: u16,
+    bus_quiet_low: u16,
+    bus_quiet_span: u16,
+    quiet: bool,
+    /// `bus_q15 = counts << bus_shift`.
+    bus_shift: u32,
+    last_current_q15: i16,
+    last: FixedDrive,
+    state: LoopState,
+    heat: Option<FixedHeat>,
+    pi: FixedPi,
+    supervisor: Supervisor,
+    config: FixedLoopConfig,
 }
 
 /// `v 2^15 / b` for `v <= b < 2^15`, within 2^-15 of the exact quotient
@@ -383,6 +401,10 @@ impl FixedLoop {
             Some(t) => Some(FixedHeat::new(t, period_s, scale.current_full_scale_a())?),
             None => None,
         };
+        let quiet_counts = quiet_band(sense, threshold);
+        let bus_quiet_low = bus_low.max(min_bus);
+        let quiet = quiet_counts.is_some() && bus_quiet_low <= bus_high;
+        let (quiet_low, quiet_span) = quiet_counts.unwrap_or((0, 0));
         Ok(Self {
             supervisor: Supervisor::counting(*sup),
             heat,
@@ -390,11 +412,19 @@ impl FixedLoop {
             state: LoopState::Disabled,
             count_step: step,
             offset_q,
+            rail_low: sense.clear_band().0,
+            rail_span: sense.clear_band().1,
             over_low,
             over_span,
             bus_low,
             bus_high,
             min_bus,
+            quiet_low,
+            quiet_span,
+            bus_quiet_low,
+            bus_quiet_span: bus_high.wrapping_sub(bus_quiet_low),
+            quiet,
+            bus_shift: config.bus_shift,
             max_duty_q15: q15(duty.max_duty()).min(32767),
             stuck_drive_q15,
             sp_min,
@@ -422,16 +452,32 @@ impl FixedLoop {
             Some(h) => (h.tick(i), h.still_hot()),
             None => (false, false),
         };
+        let driven = self.last.duty_q15 as u32 >= self.stuck_drive_q15;
+        // The short path: running, every reading in range, nothing counting,
+        // no trip; the same result as the full check below (tests hold them
+        // side by side).
+        if self.quiet
+            && self.state == LoopState::Running
+            && !hot_trip
+            && c.wrapping_sub(self.quiet_low) <= self.quiet_span
+            && b.wrapping_sub(self.bus_quiet_low) <= self.bus_quiet_span
+            && self.supervisor.settled()
+            && self.supervisor.quiet_counts(c, driven, still_hot)
+        {
+            let command = self.run(i, b);
+            self.last = command;
+            return command;
+        }
         let latched = self.supervisor.judge(&Verdict {
             present: FaultSet::EMPTY
                 .with_if(Fault::Overcurrent, c.wrapping_sub(self.over_low) > self.over_span)
                 .with_if(Fault::Overload, still_hot || hot_trip)
-                .with_if(Fault::SensorRail, self.config.base.sense().at_rail(c))
+                .with_if(Fault::SensorRail, c.wrapping_sub(self.rail_low) > self.rail_span)
                 .with_if(Fault::BusUndervoltage, b < self.bus_low)
                 .with_if(Fault::BusOvervoltage, b > self.bus_high),
             hot_trip,
             counts: c,
-            driven: self.last.duty_q15 as u32 >= self.stuck_drive_q15,
+            driven,
         });
         let command = if !latched.is_empty() {
             if self.state != LoopState::Faulted {
@@ -458,7 +504,7 @@ impl FixedLoop {
             .max(self.setpoint.0.saturating_sub(self.sp_step.0))
             .min(self.setpoint.0.saturating_add(self.sp_step.0));
         self.setpoint = Fixed(r);
-        let bus_q15 = (bus_counts as u32) << (self.config.bus_shift & 31);
+        let bus_q15 = (bus_counts as u32) << (self.bus_shift & 31);
         let good_bus = bus_counts >= self.min_bus;
         // What the bus gives now, Q27 (0 below min_bus_v, as the float mapping).
         let available = if good_bus {

@@ -50,6 +50,10 @@ pub struct FixedHeat {
     /// `alpha = alpha_m 2^-alpha_s`.
     alpha_m: u32,
     alpha_s: u32,
+    /// The heat's two comparisons, kept from the last change of the heat
+    /// (a step or a set), so a tick between steps reads two flags.
+    tripped: bool,
+    still_hot: bool,
 }
 
 /// `2^32` as the rated steady state.
@@ -147,6 +151,8 @@ impl FixedHeat {
             kappa_s,
             alpha_m,
             alpha_s,
+            tripped: false,
+            still_hot: false,
         })
     }
 
@@ -181,18 +187,25 @@ impl FixedHeat {
         self.heat = self.kept + mul_shift(self.sum, self.kappa_m, self.kappa_s);
         self.sum = 0;
         self.countdown = self.ticks_per_step;
+        self.compare();
+    }
+
+    /// The heat against the trip and cooled levels.
+    fn compare(&mut self) {
+        self.tripped = self.heat >= self.trip;
+        self.still_hot = self.heat > ONE;
     }
 
     /// True while the heat is at or above the trip level.
     #[inline(always)]
     pub fn tripped(&self) -> bool {
-        self.heat >= self.trip
+        self.tripped
     }
 
     /// True while the winding has not cooled to the rated steady state.
     #[inline(always)]
     pub fn still_hot(&self) -> bool {
-        self.heat > ONE
+        self.still_hot
     }
 
     /// The normalised heat (1 = steady state at rated current), for telemetry.
@@ -205,6 +218,7 @@ impl FixedHeat {
         let h = non_negative("heat", heat)?;
         self.heat = libm::round(h as f64 * ONE as f64) as u64;
         self.keep();
+        self.compare();
         Ok(())
     }
 }

@@ -601,6 +601,24 @@ impl Supervisor {
         true
     }
 
+    /// The fixed-point loop's short path, for a caller that has found the
+    /// reading clear of the rails and the threshold and the bus inside its
+    /// window on a settled supervisor, and has ticked its own heat model
+    /// below the trip: false, and nothing changed, if the reading would
+    /// count as frozen (`driven` says the drive is at least the detector's
+    /// `min_drive`, false without stuck detection); otherwise it does what
+    /// [`Supervisor::judge`] would (the reading remembered, a warm winding
+    /// present as overload) and returns true.
+    #[inline(always)]
+    pub(crate) fn quiet_counts(&mut self, counts: u16, driven: bool, still_hot: bool) -> bool {
+        if driven && self.frozen(counts) {
+            return false;
+        }
+        self.present = FaultSet::EMPTY.with_if(Fault::Overload, still_hot);
+        self.last_counts = counts as i32;
+        true
+    }
+
     /// Whether a reading has moved by no more than the stuck band since the last;
     /// callers ask only with stuck detection configured.
     #[inline(always)]
