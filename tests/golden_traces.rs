@@ -14,7 +14,12 @@ use std::path::{Path, PathBuf};
 
 use host_sim::Scenario;
 
-const NAMES: [&str; 3] = ["demo-step-switching", "sensor-short", "bus-dip-averaged"];
+const NAMES: [&str; 4] = [
+    "demo-step-switching",
+    "sensor-short",
+    "bus-dip-averaged",
+    "demo-step-fixed",
+];
 const TOLERANCE: f64 = 1e-6;
 
 fn golden_dir() -> PathBuf {

@@ -125,7 +125,15 @@ impl VirtualBoard {
     /// not used: commands come over the link), advancing `quantum_s` of
     /// simulated time after each reply (at least one control tick).
     pub fn new(scenario: &Scenario, quantum_s: f64) -> Result<Self, ScenarioError> {
-        let (cl, _) = scenario.start()?;
+        if scenario.fixed_point.is_some() {
+            return Err(crate::model_error::ModelError::new(
+                "controller.arithmetic",
+                "fixed",
+                "\"float\" (left out) for the virtual board: its firmware, the bench link's, runs the float loop",
+            )
+            .into());
+        }
+        let cl = scenario.float_loop()?;
         let period_s = scenario.timing.control_period_s();
         Ok(Self {
             // One trace point is all the runner keeps: the board's record is

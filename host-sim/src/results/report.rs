@@ -43,6 +43,8 @@ pub struct Report {
     pub description: String,
     /// `averaged` or `switching`.
     pub bridge_mode: &'static str,
+    /// The firmware's arithmetic: "float" or "fixed-point".
+    pub arithmetic: &'static str,
     /// PWM frequency, hertz.
     pub pwm_frequency_hz: f64,
     /// Control rate, hertz.
@@ -157,6 +159,11 @@ pub fn summarise(
             Modulation::Averaged => "averaged",
             Modulation::Switching => "switching",
         },
+        arithmetic: if scenario.fixed_point.is_some() {
+            "fixed-point"
+        } else {
+            "float"
+        },
         pwm_frequency_hz: bridge.pwm_frequency_hz,
         control_rate_hz: 1.0 / scenario.timing.control_period_s(),
         duration_s: scenario.duration_s,
@@ -203,9 +210,10 @@ impl Report {
         }
         let _ = writeln!(
             s,
-            "{} bridge at {:.0} Hz PWM, control at {:.0} Hz, {} ticks over {:.3} ms\n",
+            "{} bridge at {:.0} Hz PWM, {} control at {:.0} Hz, {} ticks over {:.3} ms\n",
             self.bridge_mode,
             self.pwm_frequency_hz,
+            self.arithmetic,
             self.control_rate_hz,
             self.ticks,
             self.duration_s * 1e3

@@ -11,9 +11,10 @@ impl Report {
             out.push(Section::Text(self.description.clone()));
         }
         out.push(Section::Text(format!(
-            "{} bridge at {:.0} Hz PWM, control at {:.0} Hz, {} ticks over {:.3} s. Verdict: {}.",
+            "{} bridge at {:.0} Hz PWM, {} control at {:.0} Hz, {} ticks over {:.3} s. Verdict: {}.",
             self.bridge_mode,
             self.pwm_frequency_hz,
+            self.arithmetic,
             self.control_rate_hz,
             self.ticks,
             self.duration_s,

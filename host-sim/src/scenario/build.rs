@@ -8,6 +8,8 @@ use pi_core::{
     SupervisorConfig, ThermalConfig,
 };
 
+use pi_core::current_loop::fixed::{FixedLoop, FixedLoopConfig};
+
 use super::names::{Site, core};
 use super::params::{AntiWindupParams, EventAction, GainParams, OverloadCurve, Params};
 use super::{Scenario, ScenarioError};
@@ -17,6 +19,7 @@ use crate::plant::faults::{FaultKind, Injectors};
 use crate::plant::motor::Motor;
 use crate::plant::sense_chain::SenseChain;
 use crate::plant::timing::Timing;
+use crate::sim::controller::{FixedFirmware, LoopUnderTest};
 use crate::sim::runner::{DriveChain, Event};
 
 /// The largest load torque a scenario may apply, N m: ten kilonewton-metres is
@@ -78,6 +81,16 @@ impl Params {
         }
         let weight = self.controller.setpoint_weight.unwrap_or(default_weight);
         let loop_config = self.loop_config(gains, weight, &sense)?;
+        let fixed_point = match self.controller.fixed_point {
+            Some(f) => {
+                let per_count = f.bus_full_scale_v / (1u32 << f.bus_adc_bits) as f64;
+                let config = FixedLoopConfig::new(loop_config, f.bus_adc_bits, per_count as f32)
+                    .map_err(|e| core(Site::FixedPoint, e))?;
+                FixedLoop::new(config).map_err(|e| core(Site::FixedPoint, e))?;
+                Some((config, f.bus_adc_bits))
+            }
+            None => None,
+        };
         let mut events = Vec::new();
         for (k, e) in self.events.iter().enumerate() {
             let at = ModelError::non_negative(&format!("events[{k}].at_s"), e.at_s)?;
@@ -156,6 +169,7 @@ impl Params {
             },
             timing,
             loop_config,
+            fixed_point,
             events,
             spec: self.spec,
             expect: self.expect,
@@ -333,14 +347,26 @@ impl Params {
 }
 
 impl Scenario {
-    /// A fresh controller and runner at `t = 0`, keeping one trace point in
-    /// `record_every_ticks`.
-    pub fn start(&self) -> Result<(CurrentLoop, crate::sim::runner::Runner), ScenarioError> {
-        let cl = CurrentLoop::new(self.loop_config).map_err(|e| core(Site::Loop, e))?;
+    /// A fresh controller (the arithmetic the scenario chose) and runner at
+    /// `t = 0`, keeping one trace point in `record_every_ticks`.
+    pub fn start(&self) -> Result<(LoopUnderTest, crate::sim::runner::Runner), ScenarioError> {
+        let firmware = match self.fixed_point {
+            Some((config, bits)) => LoopUnderTest::Fixed(FixedFirmware::new(
+                FixedLoop::new(config).map_err(|e| core(Site::FixedPoint, e))?,
+                bits,
+            )),
+            None => LoopUnderTest::Float(self.float_loop()?),
+        };
         Ok((
-            cl,
+            firmware,
             crate::sim::runner::Runner::new(self.chain.clone(), self.timing.clone(), self.events.clone())
                 .record_every(self.record_every_ticks),
         ))
+    }
+
+    /// The float loop of the scenario, whatever arithmetic it chose (for the
+    /// bench link's virtual board, which runs the float firmware).
+    pub fn float_loop(&self) -> Result<CurrentLoop, ScenarioError> {
+        CurrentLoop::new(self.loop_config).map_err(|e| core(Site::Loop, e))
     }
 }

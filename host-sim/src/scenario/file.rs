@@ -283,6 +283,13 @@ pub(super) enum RuleName {
     Tustin,
 }
 
+#[derive(Debug, Deserialize, Clone, Copy, PartialEq)]
+#[serde(rename_all = "snake_case")]
+pub(super) enum ArithmeticName {
+    Float,
+    Fixed,
+}
+
 #[derive(Debug, Deserialize, Clone, Copy)]
 #[serde(rename_all = "snake_case")]
 pub(super) enum AntiWindupName {
@@ -325,6 +332,11 @@ pub(super) struct ControllerSection {
     pub(super) speed_feedback: bool,
     pub(super) calibration_shunt_ohm: Option<f64>,
     pub(super) calibration_amplifier_gain: Option<f64>,
+    /// The firmware's arithmetic: `float` (default) or `fixed`.
+    pub(super) arithmetic: Option<ArithmeticName>,
+    /// The bus ADC, for the fixed-point loop.
+    pub(super) bus_adc_bits: Option<u8>,
+    pub(super) bus_full_scale_v: Option<f64>,
     pub(super) setpoint: SetpointSection,
     pub(super) protection: ProtectionSection,
 }

@@ -95,6 +95,9 @@ pub struct Scenario {
     pub timing: Timing,
     /// The firmware's loop configuration.
     pub loop_config: LoopConfig,
+    /// The fixed-point loop's configuration and bus ADC bits, when the
+    /// scenario runs the integer loop (`controller.arithmetic = "fixed"`).
+    pub fixed_point: Option<(pi_core::current_loop::fixed::FixedLoopConfig, u8)>,
     /// Commands from the main loop.
     pub events: Vec<Event>,
     /// What the steps should meet.

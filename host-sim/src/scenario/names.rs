@@ -36,6 +36,8 @@ pub(super) enum Site<'a> {
     Loop,
     /// `Feedforward` and `LoopConfig::with_feedforward`.
     Feedforward,
+    /// `FixedLoopConfig` and `FixedLoop`: the fixed-point loop.
+    FixedPoint,
 }
 
 /// The scenario path and unit note for a pi-core field at a site (`None`: not
@@ -80,6 +82,21 @@ pub(super) fn path(site: Site, field: &str) -> Option<(String, &'static str)> {
         )),
         (Site::Feedforward, "resistance_ohm") => plain("controller.feedforward_resistance_ohm"),
         (Site::Feedforward, "back_emf_v_s_per_rad") => plain("controller.feedforward_back_emf_v_s_per_rad"),
+        (Site::FixedPoint, "adc_bits") => plain("sense.adc_bits"),
+        (Site::FixedPoint, "bus_adc_bits") => plain("controller.bus_adc_bits"),
+        (Site::FixedPoint, "bus_v_per_count") => {
+            Some(("controller.bus_full_scale_v".to_string(), " (as volts per count)"))
+        }
+        (Site::FixedPoint, "max_v") => Some((format!("{P}.bus_max_v"), "")),
+        (Site::FixedPoint, "kp_v_per_a") => plain("controller.kp_v_per_a"),
+        (Site::FixedPoint, "threshold_a") => Some((format!("{P}.overcurrent_a"), "")),
+        (Site::FixedPoint, "rated_a") => Some((format!("{P}.rated_a"), "")),
+        (Site::FixedPoint, "tau_s") => Some((format!("{P}.thermal_time_constant_s"), "")),
+        (Site::FixedPoint, "current_full_scale_a") => Some((
+            "sense.adc_bits".to_string(),
+            " (the current sensor's full scale, in amperes)",
+        )),
+        (Site::FixedPoint, "voltage_full_scale_v") => plain("controller.bus_full_scale_v"),
         _ => None,
     }
 }
@@ -91,6 +108,12 @@ fn other(name: &str) -> String {
         "min_v" => "the lower output limit".into(),
         "min_a and zero" => "controller.setpoint.min_a and zero".into(),
         "the overcurrent threshold_a" => "controller.protection.overcurrent_a".into(),
+        "the bus ADC's full scale, bus_v_per_count x (2^bus_adc_bits - 1)" => {
+            "controller.bus_full_scale_v less one count".into()
+        }
+        "8 x the bus ADC's full scale over the current sensor's full scale" => {
+            "8 x controller.bus_full_scale_v over the current sensor's full scale (the fixed-point PI's coefficients must stay below 8)".into()
+        }
         "a hundredth of the thermal time constant tau_s" => {
             "a hundredth of the I^2t time constant (controller.protection)".into()
         }
@@ -149,6 +172,7 @@ mod tests {
             Site::Calibration,
             Site::Loop,
             Site::Feedforward,
+            Site::FixedPoint,
         ];
         let fields = [
             "kp_v_per_a",
@@ -182,6 +206,10 @@ mod tests {
             "offset_counts",
             "resistance_ohm",
             "back_emf_v_s_per_rad",
+            "bus_adc_bits",
+            "bus_v_per_count",
+            "current_full_scale_a",
+            "voltage_full_scale_v",
         ];
         let mut mapped = 0;
         for site in sites {

@@ -113,10 +113,22 @@ pub struct ControllerParams {
     pub calibration_shunt_ohm: Option<f64>,
     /// The amplifier gain it assumes; `None`: the sense chain's.
     pub calibration_amplifier_gain: Option<f64>,
+    /// The fixed-point loop (integers, for cores without an FPU) instead of
+    /// the float one, with its bus ADC; `None`: the float loop.
+    pub fixed_point: Option<FixedPointParams>,
     /// Setpoint limits and slew.
     pub setpoint: SetpointParams,
     /// Protections.
     pub protection: ProtectionParams,
+}
+
+/// The fixed-point loop's bus ADC.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct FixedPointParams {
+    /// Its resolution, bits (2 to 15).
+    pub bus_adc_bits: u8,
+    /// The bus voltage of a full-scale reading, V (`2^bits` counts).
+    pub bus_full_scale_v: f64,
 }
 
 /// Setpoint limits.

@@ -92,21 +92,21 @@ impl FixedLoopConfig {
             return Err(ConfigError::new(
                 "resistance_ohm",
                 ff.resistance_ohm(),
-                Requirement::Below("any value: the fixed-point loop has no feedforward"),
+                Requirement::Within { min: 0.0, max: 0.0 },
             ));
         }
         if ff.back_emf_v_s_per_rad() != 0.0 {
             return Err(ConfigError::new(
                 "back_emf_v_s_per_rad",
                 ff.back_emf_v_s_per_rad(),
-                Requirement::Below("any value: the fixed-point loop has no feedforward"),
+                Requirement::Within { min: 0.0, max: 0.0 },
             ));
         }
         if let Some(limit) = base.supervisor().speed_limit() {
             return Err(ConfigError::new(
                 "max_speed_rad_s",
                 limit.max_speed_rad_s(),
-                Requirement::Below("any value: the fixed-point loop reads no speed"),
+                Requirement::Within { min: 0.0, max: 0.0 },
             ));
         }
         let bus_fs_counts = (1u32 << bus_adc_bits) - 1;

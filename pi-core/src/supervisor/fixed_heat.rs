@@ -213,6 +213,11 @@ impl FixedHeat {
         (self.heat as f64 / ONE as f64) as f32
     }
 
+    /// The trip level (`trip_multiple^2`), in the units of [`FixedHeat::heat`].
+    pub fn trip_level(&self) -> f32 {
+        (self.trip as f64 / ONE as f64) as f32
+    }
+
     /// Sets the heat (>= 0), as [`ThermalModel::set_heat`].
     pub fn set_heat(&mut self, heat: f32) -> Result<(), ConfigError> {
         let h = non_negative("heat", heat)?;
