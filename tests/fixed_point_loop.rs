@@ -287,17 +287,32 @@ fn the_fixed_point_settings_are_refused_where_they_do_not_fit() {
     };
     // The bus ADC without the fixed-point loop.
     refused(
-        &edited(DEMO, &[("speed_feedback =", "speed_feedback = false\nbus_full_scale_v = 40.0")]),
+        &edited(
+            DEMO,
+            &[(
+                "speed_feedback =",
+                "speed_feedback = false\nbus_full_scale_v = 40.0",
+            )],
+        ),
         "controller.bus_full_scale_v",
     );
     // The fixed-point loop without the bus ADC's full scale.
     refused(
-        &edited(DEMO, &[("speed_feedback =", "speed_feedback = false\narithmetic = \"fixed\"")]),
+        &edited(
+            DEMO,
+            &[(
+                "speed_feedback =",
+                "speed_feedback = false\narithmetic = \"fixed\"",
+            )],
+        ),
         "controller.bus_full_scale_v",
     );
     // Feedforward, which the fixed-point loop has not.
     refused(
-        &edited(&fixed(DEMO), &[("feedforward_resistance_ohm =", "feedforward_resistance_ohm = 1.9")]),
+        &edited(
+            &fixed(DEMO),
+            &[("feedforward_resistance_ohm =", "feedforward_resistance_ohm = 1.9")],
+        ),
         "controller.feedforward_resistance_ohm",
     );
     // A bus ADC of 16 bits.
