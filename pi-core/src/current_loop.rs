@@ -9,7 +9,8 @@
 //!    latched gives the safe command and resets the PI and the setpoint;
 //! 3. setpoint: the requested current, limited and slewed ([`crate::setpoint`]);
 //! 4. PI: amperes to volts ([`crate::pi`]), limited to what the bus can give now
-//!    minus the feedforward, so anti-windup acts on the real actuator limit;
+//!    minus the feedforward, so anti-windup acts on the real actuator limit
+//!    (down to 0 V for a one-direction drive, [`DutyMapping::one_direction`]);
 //! 5. feedforward: `R * i_ref + Ke * speed`, limited to what the bus can give,
 //!    added to the PI output;
 //! 6. volts to duty by the measured bus, limited to the duty range ([`crate::output`]).
@@ -143,6 +144,16 @@ impl LoopConfig {
             ));
         }
         check_readable(threshold, &sense)?;
+        if !duty.reverses() && setpoint.min_a() < 0.0 {
+            return Err(ConfigError::new(
+                "setpoint_min_a",
+                setpoint.min_a(),
+                Requirement::Within {
+                    min: 0.0,
+                    max: f32::MAX,
+                },
+            ));
+        }
         Ok(Self {
             sense,
             setpoint,
@@ -201,6 +212,17 @@ impl LoopConfig {
     /// The feedforward terms ([`Feedforward::NONE`] when off).
     pub fn feedforward(&self) -> &Feedforward {
         &self.feedforward
+    }
+
+    /// The PI configuration the loop runs: the configured one, with the
+    /// lower output limit at 0 V for a one-direction drive (where the
+    /// drive's floor is, so the PI's anti-windup acts there).
+    pub(crate) fn pi_as_run(&self) -> PiConfig {
+        if self.duty.reverses() {
+            self.pi
+        } else {
+            self.pi.with_floor(0.0)
+        }
     }
 
     /// The control period, seconds (the PI's).
@@ -452,7 +474,9 @@ impl CurrentLoop {
         // gives at most this (rounding is monotonic).
         let widest_v = config.duty.available_v(config.supervisor.bus().max_v());
         let limits = config.pi.limits();
+        // (A one-direction drive takes the general branch, which knows its floor.)
         let bus_sets_limits = config.feedforward == Feedforward::NONE
+            && config.duty.reverses()
             && limits.min_v() <= -widest_v
             && limits.max_v() >= widest_v;
         let quiet_window = QuietWindow::new(&config.sense, &config.supervisor, &config.duty);
@@ -460,7 +484,7 @@ impl CurrentLoop {
             sense: config.sense,
             setpoint: SetpointShaper::new(config.setpoint, period_s),
             supervisor: Supervisor::new(config.supervisor, period_s)?,
-            pi: PiController::new(config.pi),
+            pi: PiController::new(config.pi_as_run()),
             config,
             state: LoopState::Disabled,
             last: DriveCommand::SAFE,
@@ -578,7 +602,7 @@ impl CurrentLoop {
             duty.available_v(bus_v)
         };
         let volts = if self.bus_sets_limits {
-            // No feedforward: the PI's output is the whole voltage.
+            // No feedforward, a reversing drive: the PI's output is the whole voltage.
             self.pi.update_inside(i_ref, current_a, -available, available)
         } else {
             let ff = &self.config.feedforward;
@@ -589,17 +613,22 @@ impl CurrentLoop {
             // Limited to what the bus gives, so the PI's range below is never
             // empty and the sum stays within the bus. (A NaN cannot reach here:
             // a non-finite speed latches a fault first.)
-            let v_ff = clamp(ff.resistance_ohm * i_ref + speed_term, -available, available);
+            // (The configured limits give a one-direction drive's PI its 0 V
+            // floor; the feedforward is held to it here.)
+            let lowest = duty.lowest_v(available);
+            let v_ff = clamp(ff.resistance_ohm * i_ref + speed_term, lowest, available);
             let v_pi = self
                 .pi
                 .update_within(i_ref, current_a, -available - v_ff, available - v_ff);
+            // At a 0 V floor a -0 from the PI becomes +0 here (v_ff is +0 or
+            // above), so a one-direction drive is never told to reverse.
             v_pi + v_ff
         };
         self.last_volts = volts;
         if BUS_CHECKED {
             duty.command_on_good_bus(volts, bus_v)
         } else {
-            duty.command(volts, bus_v)
+            duty.command_within_range(volts, bus_v)
         }
     }
 
@@ -621,7 +650,8 @@ impl CurrentLoop {
         };
         let limits = self.config.pi.limits();
         let available = self.config.duty.available_v(bus_v);
-        let v = clamp(clamp(v, limits.min_v(), limits.max_v()), -available, available);
+        let lowest = self.config.duty.lowest_v(available);
+        let v = clamp(clamp(v, limits.min_v(), limits.max_v()), lowest, available);
         self.last_volts = v;
         self.config.duty.command(v, bus_v)
     }
@@ -818,5 +848,7 @@ impl CurrentLoop {
 
 pub mod fixed;
 
+#[cfg(test)]
+mod one_direction_tests;
 #[cfg(test)]
 mod quiet_path_tests;

@@ -68,14 +68,47 @@ impl DriveCommand {
 pub struct DutyMapping {
     max_duty: f32,
     min_bus_v: f32,
+    /// The lowest voltage as a share of what the bus gives: -1 for a bridge
+    /// that reverses, 0 for a one-direction drive.
+    floor_share: f32,
 }
 
 impl DutyMapping {
     /// `max_duty` in `(0, 1]`; `min_bus_v > 0` is the lowest bus that is divided by.
+    /// The drive reverses (an H-bridge); see [`DutyMapping::one_direction`].
     pub fn new(max_duty: f32, min_bus_v: f32) -> Result<Self, ConfigError> {
         let max_duty = within("max_duty", max_duty, f32::MIN_POSITIVE, 1.0)?;
         let min_bus_v = positive("min_bus_v", min_bus_v)?;
-        Ok(Self { max_duty, min_bus_v })
+        Ok(Self {
+            max_duty,
+            min_bus_v,
+            floor_share: -1.0,
+        })
+    }
+
+    /// The same mapping for a drive that applies the bus one way only: a
+    /// low-side switch with a freewheel diode across the load (a valve, a
+    /// solenoid, an LED string, a charger). Current flows one way; the
+    /// lowest voltage asked for is 0 V (switch off: the current decays
+    /// through the diode), a negative voltage gives duty 0, and the loop
+    /// refuses a negative setpoint range ([`crate::LoopConfig::new`]).
+    pub fn one_direction(self) -> Self {
+        Self {
+            floor_share: 0.0,
+            ..self
+        }
+    }
+
+    /// Whether the drive reverses (false for [`DutyMapping::one_direction`]).
+    pub fn reverses(&self) -> bool {
+        self.floor_share < 0.0
+    }
+
+    /// The lowest voltage the drive can ask for when it gives up to
+    /// `available_v`: `-available_v` reversing, 0 one way.
+    #[inline(always)]
+    pub fn lowest_v(&self, available_v: f32) -> f32 {
+        available_v * self.floor_share
     }
 
     /// Highest duty fraction.
@@ -103,7 +136,25 @@ impl DutyMapping {
     /// or infinite volts.
     #[inline]
     pub fn command(&self, volts: f32, bus_v: f32) -> DriveCommand {
+        // One way only: a finite negative voltage (or -0) is the switch off
+        // (NaN and infinities go on to the safe command).
+        let volts = if !self.reverses() && volts <= 0.0 && volts > f32::NEG_INFINITY {
+            0.0
+        } else {
+            volts
+        };
         // A NaN bus fails this comparison too.
+        if bus_v >= self.min_bus_v {
+            self.command_on_good_bus(volts, bus_v)
+        } else {
+            DriveCommand::SAFE
+        }
+    }
+
+    /// [`DutyMapping::command`] for volts the caller knows are at or above
+    /// [`DutyMapping::lowest_v`] (+0 for a one-direction drive): the loop's.
+    #[inline(always)]
+    pub(crate) fn command_within_range(&self, volts: f32, bus_v: f32) -> DriveCommand {
         if bus_v >= self.min_bus_v {
             self.command_on_good_bus(volts, bus_v)
         } else {
@@ -133,7 +184,8 @@ impl DutyMapping {
         DriveCommand {
             duty: magnitude,
             // The sign bit: a negative zero (the loop never asks for one) is
-            // reverse at zero duty.
+            // reverse at zero duty. (A one-direction drive's volts arrive here
+            // at +0 or above: `command` and the loop see to it.)
             direction: if duty.is_sign_negative() {
                 Direction::Reverse
             } else {
@@ -170,6 +222,25 @@ mod tests {
         assert_eq!(m.command(f32::NEG_INFINITY, 24.0), DriveCommand::SAFE);
         assert_eq!(m.available_v(5.0), 0.0);
         assert_eq!(m.available_v(20.0), 19.0);
+    }
+
+    #[test]
+    fn a_one_direction_drive_never_reverses() {
+        let m = DutyMapping::new(0.95, 6.0).unwrap().one_direction();
+        assert!(!m.reverses() && DutyMapping::new(0.95, 6.0).unwrap().reverses());
+        let c = m.command(-12.0, 24.0);
+        assert_eq!((c.duty, c.direction, c.enabled), (0.0, Direction::Forward, true));
+        assert_eq!(m.command(-0.0, 24.0).direction, Direction::Forward);
+        assert_eq!(m.command(6.0, 24.0).duty, 0.25);
+        assert_eq!(m.command(f32::NAN, 24.0), DriveCommand::SAFE);
+        assert_eq!(m.command(f32::NEG_INFINITY, 24.0), DriveCommand::SAFE);
+        assert_eq!(
+            (
+                m.lowest_v(19.0),
+                DutyMapping::new(0.95, 6.0).unwrap().lowest_v(19.0)
+            ),
+            (0.0, -19.0)
+        );
     }
 
     #[test]

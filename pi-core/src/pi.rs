@@ -362,6 +362,22 @@ impl PiConfig {
         self.limits
     }
 
+    /// The configuration with its lower output limit raised to `floor_v`
+    /// where it is below (and still at most the upper one): a one-direction
+    /// drive's PI never asks for less than 0 V, so its anti-windup acts there.
+    pub(crate) fn with_floor(self, floor_v: f32) -> Self {
+        let l = self.limits;
+        let min_v = if l.min_v < floor_v && floor_v <= l.max_v {
+            floor_v
+        } else {
+            l.min_v
+        };
+        Self {
+            limits: OutputLimits { min_v, ..l },
+            ..self
+        }
+    }
+
     /// Integrator rule.
     pub fn rule(&self) -> IntegratorRule {
         self.rule

@@ -137,7 +137,7 @@ impl FixedLoopConfig {
     }
 
     fn pi(&self) -> Result<FixedPi, ConfigError> {
-        FixedPi::new(*self.base.pi(), self.scale).map_err(|e| self.gain_error(e))
+        FixedPi::new(self.base.pi_as_run(), self.scale).map_err(|e| self.gain_error(e))
     }
 
     /// A coefficient too large names the gain (the full scales are the ADCs').
@@ -184,7 +184,7 @@ impl FixedLoopConfig {
     /// New gains converted ahead of time for [`FixedCommand::Retune`];
     /// refused as [`FixedLoopConfig::new`] refuses gains.
     pub fn retune(&self, gains: PiGains) -> Result<FixedRetune, ConfigError> {
-        FixedRetune::new(self.base.pi(), gains, &self.scale).map_err(|e| self.gain_error(e))
+        FixedRetune::new(&self.base.pi_as_run(), gains, &self.scale).map_err(|e| self.gain_error(e))
     }
 }
 

@@ -130,12 +130,15 @@ fn build(s: &Setup) -> Option<CurrentLoop> {
         .with_anti_windup(aw)
         .ok()?;
     let max_a = 0.9 * s.threshold_a;
+    // One setup in three drives one way (a low-side switch): no negative setpoints.
+    let one_way = s.rail_margin % 3 == 0;
+    let duty = DutyMapping::new(0.95, s.min_bus_v).ok()?;
     let mut config = LoopConfig::new(
         sense,
-        SetpointLimits::new(-max_a, max_a, 2000.0).ok()?,
+        SetpointLimits::new(if one_way { 0.0 } else { -max_a }, max_a, 2000.0).ok()?,
         supervisor,
         pi,
-        DutyMapping::new(0.95, s.min_bus_v).ok()?,
+        if one_way { duty.one_direction() } else { duty },
     )
     .ok()?;
     if let Some((r, ke)) = s.feedforward {
