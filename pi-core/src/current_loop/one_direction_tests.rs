@@ -43,7 +43,7 @@ struct Coil {
 
 impl Coil {
     fn step(&mut self, duty: f64, bus_v: f64) {
-        let (r, l, t) = (20.0, 0.2, 1e-4);
+        let (r, l, t): (f64, f64, f64) = (20.0, 0.2, 1e-4);
         // The period's mean voltage: the bus while on, minus the diode while off.
         let v = duty * bus_v - (1.0 - duty) * if self.i > 0.0 { 0.7 } else { 0.0 };
         let a = (-r * t / l).exp();
