@@ -131,7 +131,7 @@ fn build(s: &Setup) -> Option<CurrentLoop> {
         .ok()?;
     let max_a = 0.9 * s.threshold_a;
     // One setup in three drives one way (a low-side switch): no negative setpoints.
-    let one_way = s.rail_margin % 3 == 0;
+    let one_way = s.rail_margin.is_multiple_of(3);
     let duty = DutyMapping::new(0.95, s.min_bus_v).ok()?;
     let mut config = LoopConfig::new(
         sense,
