@@ -143,7 +143,7 @@ impl LoopConfig {
                 Requirement::Below("the overcurrent threshold_a"),
             ));
         }
-        check_readable(threshold, &sense)?;
+        check_readable(threshold, &sense, &duty)?;
         if !duty.reverses() && setpoint.min_a() < 0.0 {
             return Err(ConfigError::new(
                 "setpoint_min_a",
@@ -231,9 +231,16 @@ impl LoopConfig {
     }
 }
 
-/// The overcurrent threshold must be readable before the sensor reaches a rail.
-fn check_readable(threshold_a: f32, sense: &CurrentSense) -> Result<(), ConfigError> {
-    if threshold_a >= sense.readable_a() {
+/// The overcurrent threshold must be readable before the sensor reaches a rail:
+/// both ways, or forward only for a one-direction drive (a negative reading
+/// beyond the sensor's range reads a rail, which faults in any case).
+fn check_readable(threshold_a: f32, sense: &CurrentSense, duty: &DutyMapping) -> Result<(), ConfigError> {
+    let readable = if duty.reverses() {
+        sense.readable_a()
+    } else {
+        sense.readable_forward_a()
+    };
+    if threshold_a >= readable {
         return Err(ConfigError::new(
             "threshold_a",
             threshold_a,
@@ -753,7 +760,7 @@ impl CurrentLoop {
             return Err(CommandError::NotWhileRunning);
         }
         let threshold = self.config.supervisor.overcurrent().threshold_a();
-        check_readable(threshold, &sense)?;
+        check_readable(threshold, &sense, &self.config.duty)?;
         self.sense = sense;
         self.config.sense = sense;
         self.quiet_window = QuietWindow::new(&sense, &self.config.supervisor, &self.config.duty);

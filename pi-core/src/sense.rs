@@ -168,6 +168,16 @@ impl CurrentSense {
         self.full_scale_counts
     }
 
+    /// The largest forward (positive) current the channel reads without
+    /// reaching a rail: what matters for a one-direction drive, whose current
+    /// is never negative.
+    pub fn readable_forward_a(&self) -> f32 {
+        let lo = (self.rail_margin_counts as f32 + 1.0 - self.offset_counts) * self.amps_per_count;
+        let hi = (self.full_scale_counts as f32 - self.rail_margin_counts as f32 - 1.0 - self.offset_counts)
+            * self.amps_per_count;
+        if lo > hi { lo } else { hi }
+    }
+
     /// The largest current magnitude the channel can read without reaching a rail.
     pub fn readable_a(&self) -> f32 {
         let lo = (self.rail_margin_counts as f32 + 1.0 - self.offset_counts) * self.amps_per_count;

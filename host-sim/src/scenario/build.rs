@@ -14,7 +14,7 @@ use super::names::{Site, core};
 use super::params::{AntiWindupParams, EventAction, GainParams, OverloadCurve, Params};
 use super::{Scenario, ScenarioError};
 use crate::model_error::ModelError;
-use crate::plant::bridge::Bridge;
+use crate::plant::bridge::{Bridge, Topology};
 use crate::plant::faults::{FaultKind, Injectors};
 use crate::plant::motor::Motor;
 use crate::plant::sense_chain::SenseChain;
@@ -320,6 +320,11 @@ impl Params {
             f32_of("controller.min_bus_v", c.min_bus_v)?,
         )
         .map_err(|e| core(Site::Duty, e))?;
+        // The firmware of a one-way drive knows it: no reverse, a 0 V floor.
+        let duty = match self.bridge.topology {
+            Topology::LowSide => duty.one_direction(),
+            Topology::HBridge => duty,
+        };
         let calibration = sense
             .calibration_for(
                 c.calibration_shunt_ohm.unwrap_or(self.sense.shunt_ohm),

@@ -5,13 +5,14 @@
 use pi_core::{Fault, TripClass};
 
 use super::ScenarioError;
+use super::choices;
 use super::file::{
-    ActionName, AntiWindupName, ArithmeticName, ControllerSection, DecayName, FaultCause, FaultName, File,
-    FilterKind, ModeName, RuleName, TripClassName,
+    ActionName, AntiWindupName, DecayName, FaultCause, FaultName, File, FilterKind, ModeName, RuleName,
+    TripClassName,
 };
 use super::params::{
-    AntiWindupParams, ControllerParams, EventAction, EventParams, FixedPointParams, GainParams,
-    MAX_DURATION_S, OverloadCurve, Params, ProtectionParams, SetpointParams,
+    AntiWindupParams, ControllerParams, EventAction, EventParams, GainParams, MAX_DURATION_S, OverloadCurve,
+    Params, ProtectionParams, SetpointParams,
 };
 use crate::model_error::ModelError;
 use crate::plant::bridge::{BridgeParams, Decay, Modulation, SwitchDrop};
@@ -103,9 +104,10 @@ pub(super) fn from_file(f: File, fallback_name: &str) -> Result<Params, Scenario
         switch,
         diode_drop_v: b.diode_drop_v,
         decay: match b.decay {
-            DecayName::Slow => Decay::Slow,
-            DecayName::Fast => Decay::Fast,
+            Some(DecayName::Fast) => Decay::Fast,
+            _ => Decay::Slow,
         },
+        topology: choices::topology(b)?,
     };
     let s = &f.sense;
     let filter = match &s.filter {
@@ -372,7 +374,7 @@ fn controller(f: &File) -> Result<ControllerParams, ScenarioError> {
             ModelError::within(name, v, 1e-9, 1e6)?;
         }
     }
-    let fixed_point = fixed_point(c)?;
+    let fixed_point = choices::fixed_point(c)?;
     Ok(ControllerParams {
         gains,
         setpoint_weight: c.setpoint_weight,
@@ -402,58 +404,6 @@ fn controller(f: &File) -> Result<ControllerParams, ScenarioError> {
             max_speed_rad_s: p.max_speed_rad_s,
         },
     })
-}
-
-/// The fixed-point loop's settings: the bus ADC only with `arithmetic =
-/// "fixed"`, and its full scale required there (nothing else says how the
-/// bus voltage becomes counts); no feedforward and no speed limit there.
-fn fixed_point(c: &ControllerSection) -> Result<Option<FixedPointParams>, ScenarioError> {
-    let fixed = c.arithmetic == Some(ArithmeticName::Fixed);
-    let why = "left out unless arithmetic = \"fixed\" (only the fixed-point loop reads the bus in counts)";
-    let needs_float = "0 (left out) with arithmetic = \"fixed\": the fixed-point loop has no feedforward and reads no speed";
-    let checks = [
-        ("controller.bus_adc_bits", !fixed && c.bus_adc_bits.is_some(), why),
-        (
-            "controller.bus_full_scale_v",
-            !fixed && c.bus_full_scale_v.is_some(),
-            why,
-        ),
-        (
-            "controller.feedforward_resistance_ohm",
-            fixed && c.feedforward_resistance_ohm != 0.0,
-            needs_float,
-        ),
-        (
-            "controller.feedforward_back_emf_v_s_per_rad",
-            fixed && c.feedforward_back_emf_v_s_per_rad != 0.0,
-            needs_float,
-        ),
-        (
-            "controller.protection.max_speed_rad_s",
-            fixed && c.protection.max_speed_rad_s.is_some(),
-            needs_float,
-        ),
-    ];
-    if let Some((name, _, needs)) = checks.iter().find(|(_, bad, _)| *bad) {
-        return Err(ModelError::new(*name, "(given)", *needs).into());
-    }
-    if !fixed {
-        return Ok(None);
-    }
-    let bits = c.bus_adc_bits.unwrap_or(12);
-    ModelError::within("controller.bus_adc_bits", bits as f64, 2.0, 15.0)?;
-    let fs = c.bus_full_scale_v.ok_or_else(|| {
-        ModelError::new(
-            "controller.bus_full_scale_v",
-            "(missing)",
-            "given with arithmetic = \"fixed\": the bus voltage of a full-scale reading of the bus ADC",
-        )
-    })?;
-    ModelError::within("controller.bus_full_scale_v", fs, 1e-3, 1e5)?;
-    Ok(Some(FixedPointParams {
-        bus_adc_bits: bits,
-        bus_full_scale_v: fs,
-    }))
 }
 
 fn expectations(f: &File) -> Result<Expectations, ScenarioError> {

@@ -185,6 +185,13 @@ pub(super) enum ModeName {
     Switching,
 }
 
+#[derive(Debug, Deserialize, Clone, Copy, PartialEq)]
+#[serde(rename_all = "snake_case")]
+pub(super) enum TopologyName {
+    HBridge,
+    LowSide,
+}
+
 #[derive(Debug, Deserialize, Clone, Copy)]
 #[serde(rename_all = "snake_case")]
 pub(super) enum DecayName {
@@ -209,15 +216,14 @@ pub(super) struct BridgeSection {
     pub(super) switch_drop_v: Option<f64>,
     #[serde(default)]
     pub(super) diode_drop_v: f64,
-    #[serde(default = "slow")]
-    pub(super) decay: DecayName,
+    /// H-bridge only; `slow` when left out.
+    pub(super) decay: Option<DecayName>,
+    /// `h_bridge` when left out.
+    pub(super) topology: Option<TopologyName>,
 }
 
 fn averaged() -> ModeName {
     ModeName::Averaged
-}
-fn slow() -> DecayName {
-    DecayName::Slow
 }
 
 #[derive(Debug, Deserialize, Clone, Copy)]

@@ -17,6 +17,7 @@
 //! This module never imports `tuning/`; [`crate::prepare`] joins the two.
 
 pub mod build;
+mod choices;
 mod convert;
 mod file;
 mod names;

@@ -70,6 +70,10 @@ pub(super) fn path(site: Site, field: &str) -> Option<(String, &'static str)> {
             Some((format!("controller.setpoint.{field}"), ""))
         }
         (Site::Loop, "setpoint_max_a") => plain("controller.setpoint.max_a"),
+        (Site::Loop, "setpoint_min_a") => Some((
+            "controller.setpoint.min_a".to_string(),
+            " (the bridge's topology = \"low_side\" drives one way only)",
+        )),
         (Site::Duty, "max_duty") => plain("controller.max_duty"),
         (Site::Duty, "min_bus_v") => plain("controller.min_bus_v"),
         (Site::Calibration, "vref_v") => plain("sense.adc_reference_v"),
@@ -111,8 +115,8 @@ fn other(name: &str) -> String {
         "the bus ADC's full scale, bus_v_per_count x (2^bus_adc_bits - 1)" => {
             "controller.bus_full_scale_v less one count".into()
         }
-        "8 x the bus ADC's full scale over the current sensor's full scale" => {
-            "8 x controller.bus_full_scale_v over the current sensor's full scale (the fixed-point PI's coefficients must stay below 8)".into()
+        "8 x 64 x the bus ADC's full scale over the current sensor's full scale" => {
+            "8 x 64 x controller.bus_full_scale_v over the current sensor's full scale (the fixed-point PI's coefficients must stay below 8 of its full scales, at most 64 bus full scales)".into()
         }
         "a hundredth of the thermal time constant tau_s" => {
             "a hundredth of the I^2t time constant (controller.protection)".into()
@@ -197,6 +201,7 @@ mod tests {
             "max_a",
             "slew_a_per_s",
             "setpoint_max_a",
+            "setpoint_min_a",
             "max_duty",
             "min_bus_v",
             "vref_v",

@@ -358,7 +358,10 @@ impl Runner {
         }
         self.charge_a_s += mean.supply_a * dt_s;
         self.charge_time_s += dt_s;
-        if clamped {
+        // A one-way drive's current that the mean voltage pulls down stops at
+        // zero, as its diode would within the period.
+        let falling = self.chain.bridge.one_way() && mean.terminal_v < self.chain.motor.back_emf_v();
+        if clamped || falling {
             self.clamped_step(mean.terminal_v, drive, dt_s);
         } else {
             self.chain.motor.step(

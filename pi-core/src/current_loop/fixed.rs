@@ -24,7 +24,9 @@
 //!    command.
 //!
 //! The voltage's full scale is the bus ADC's (`bus_v_per_count 2^bus_bits`),
-//! so the duty is a ratio of two numbers on one scale.
+//! so the duty is a ratio of two numbers on one scale; for a large `Kp` it
+//! is doubled (up to [`MAX_VOLT_SHIFT`] times) until every coefficient of
+//! the PI is below 8 full scales.
 //!
 //! What the float loop has and this one has not, refused by name when
 //! configured: feedforward, a speed reading (and so the speed checks), and
@@ -56,7 +58,14 @@ pub struct FixedLoopConfig {
     /// `2^(15 - bits)` of each ADC.
     current_shift: u32,
     bus_shift: u32,
+    /// The PI's voltage full scale is the bus ADC's times `2^volt_shift`.
+    volt_shift: u32,
 }
+
+/// The most the PI's voltage full scale is doubled over the bus ADC's (to
+/// hold a large `Kp`): its output then moves in steps of 1/512 of the bus
+/// ADC's full scale, still a fiftieth of a percent of the duty at most.
+pub const MAX_VOLT_SHIFT: u32 = 6;
 
 impl FixedLoopConfig {
     /// The float configuration `base` run on integers, with a bus ADC of
@@ -119,17 +128,26 @@ impl FixedLoopConfig {
             ));
         }
         let current_fs_a = libm::fabsf(sense.amps_per_count()) * fs as f32;
-        let voltage_fs_v = bus_v_per_count * (1u32 << bus_adc_bits) as f32;
-        let scale = FixedScale::new(current_fs_a, voltage_fs_v)?;
-        let config = Self {
-            base,
-            scale,
-            bus_v_per_count,
-            current_shift: 15 - bits,
-            bus_shift: 15 - bus_adc_bits as u32,
+        let bus_fs_v = bus_v_per_count * (1u32 << bus_adc_bits) as f32;
+        // The PI's voltage full scale: the bus ADC's, doubled until every
+        // coefficient is below 8 full scales (a high-inductance coil under a
+        // fast loop has a large Kp), at most MAX_VOLT_SHIFT times.
+        let mut volt_shift = 0;
+        let config = loop {
+            let config = Self {
+                base,
+                scale: FixedScale::new(current_fs_a, bus_fs_v * (1u32 << volt_shift) as f32)?,
+                bus_v_per_count,
+                current_shift: 15 - bits,
+                bus_shift: 15 - bus_adc_bits as u32,
+                volt_shift,
+            };
+            match FixedPi::new(config.base.pi_as_run(), config.scale) {
+                Ok(_) => break config,
+                Err(e) if e.field == "voltage_full_scale_v" && volt_shift < MAX_VOLT_SHIFT => volt_shift += 1,
+                Err(e) => return Err(config.gain_error(e)),
+            }
         };
-        // The PI and the heat model refuse what they cannot hold.
-        config.pi()?;
         if let Some(t) = base.supervisor().thermal() {
             FixedHeat::new(t, base.period_s(), current_fs_a)?;
         }
@@ -146,7 +164,7 @@ impl FixedLoopConfig {
             ConfigError::new(
                 "kp_v_per_a",
                 self.base.pi().gains().kp_v_per_a(),
-                Requirement::Below("8 x the bus ADC's full scale over the current sensor's full scale"),
+                Requirement::Below("8 x 64 x the bus ADC's full scale over the current sensor's full scale"),
             )
         } else {
             e
@@ -304,8 +322,10 @@ pub struct FixedLoop {
     bus_quiet_low: u16,
     bus_quiet_span: u16,
     quiet: bool,
-    /// `bus_q15 = counts << bus_shift`.
+    /// `bus_q15 = counts << bus_shift`; the PI's volts are the bus ADC's
+    /// scaled down by `2^volt_shift`.
     bus_shift: u32,
+    volt_shift: u32,
     last_current_q15: i16,
     last: FixedDrive,
     state: LoopState,
@@ -425,6 +445,7 @@ impl FixedLoop {
             bus_quiet_span: bus_high.wrapping_sub(bus_quiet_low),
             quiet,
             bus_shift: config.bus_shift,
+            volt_shift: config.volt_shift,
             max_duty_q15: q15(duty.max_duty()).min(32767),
             stuck_drive_q15,
             sp_min,
@@ -506,9 +527,10 @@ impl FixedLoop {
         self.setpoint = Fixed(r);
         let bus_q15 = (bus_counts as u32) << (self.bus_shift & 31);
         let good_bus = bus_counts >= self.min_bus;
-        // What the bus gives now, Q27 (0 below min_bus_v, as the float mapping).
+        // What the bus gives now, Q27 of the PI's voltage full scale (0 below
+        // min_bus_v, as the float mapping).
         let available = if good_bus {
-            ((bus_q15 * self.max_duty_q15) >> 15) << GUARD_BITS
+            ((bus_q15 * self.max_duty_q15) >> ((15 + self.volt_shift) & 31)) << GUARD_BITS
         } else {
             0
         } as i32;
@@ -523,7 +545,8 @@ impl FixedLoop {
         if !good_bus {
             return FixedDrive::SAFE;
         }
-        let duty = (quotient_q15(v.unsigned_abs(), bus_q15)).min(self.max_duty_q15);
+        // |v| 2^volt_shift is at most what the bus gives, below bus_q15.
+        let duty = (quotient_q15(v.unsigned_abs() << (self.volt_shift & 31), bus_q15)).min(self.max_duty_q15);
         FixedDrive {
             duty_q15: duty as u16,
             direction: if v < 0 {

@@ -106,8 +106,10 @@ pub struct BridgeParams {
     pub switch: SwitchDrop,
     /// Forward voltage of each body or free-wheel diode, volts (>= 0).
     pub diode_drop_v: f64,
-    /// Off-time behaviour.
+    /// Off-time behaviour (H-bridge only).
     pub decay: Decay,
+    /// The switches.
+    pub topology: Topology,
 }
 
 impl BridgeParams {
@@ -122,6 +124,7 @@ impl BridgeParams {
             switch: SwitchDrop::OnResistance(0.0),
             diode_drop_v: 0.0,
             decay: Decay::Slow,
+            topology: Topology::HBridge,
         }
     }
 
@@ -131,8 +134,12 @@ impl BridgeParams {
     /// bipolar switches, whose drop is a voltage. A bench measurement of R
     /// through the bridge reads the winding plus this.
     pub fn series_resistance_ohm(&self) -> f64 {
+        let switches = match self.topology {
+            Topology::HBridge => 2.0,
+            Topology::LowSide => 1.0,
+        };
         match self.switch {
-            SwitchDrop::OnResistance(r) => 2.0 * r,
+            SwitchDrop::OnResistance(r) => switches * r,
             SwitchDrop::Fixed(_) => 0.0,
         }
     }
@@ -163,53 +170,6 @@ impl BridgeState {
     /// Diodes carry the current, so it cannot pass through zero.
     pub fn diode_clamped(self) -> bool {
         matches!(self, BridgeState::Dead | BridgeState::AllOff)
-    }
-}
-
-/// One interval of a PWM period.
-#[derive(Clone, Copy, Debug, PartialEq)]
-pub struct Interval {
-    /// Start, seconds from the start of the period.
-    pub start_s: f64,
-    /// End, seconds from the start of the period.
-    pub end_s: f64,
-    /// The bridge's state.
-    pub state: BridgeState,
-}
-
-/// The intervals of one PWM period, in order (at most five).
-#[derive(Clone, Copy, Debug, PartialEq)]
-pub struct Pattern {
-    intervals: [Interval; 5],
-    len: usize,
-    /// +1 forward, -1 reverse.
-    pub sign: f64,
-}
-
-impl Pattern {
-    /// The intervals.
-    pub fn intervals(&self) -> &[Interval] {
-        &self.intervals[..self.len]
-    }
-
-    fn push(&mut self, start_s: f64, end_s: f64, state: BridgeState) {
-        if end_s > start_s && self.len < self.intervals.len() {
-            self.intervals[self.len] = Interval {
-                start_s,
-                end_s,
-                state,
-            };
-            self.len += 1;
-        }
-    }
-
-    /// The interval containing time `t_s` into the period.
-    pub fn state_at(&self, t_s: f64) -> BridgeState {
-        self.intervals()
-            .iter()
-            .find(|iv| t_s < iv.end_s)
-            .or(self.intervals().last())
-            .map_or(BridgeState::AllOff, |iv| iv.state)
     }
 }
 
@@ -291,6 +251,13 @@ impl Bridge {
             SwitchDrop::Fixed(v) => ModelError::within("bridge.switch_drop_v", v, 0.0, 1e3)?,
         };
         ModelError::within("bridge.diode_drop_v", params.diode_drop_v, 0.0, 1e3)?;
+        if params.topology == Topology::LowSide && params.dead_time_s != 0.0 {
+            return Err(ModelError::new(
+                "bridge.dead_time_s",
+                params.dead_time_s,
+                "0 (left out) with topology = \"low_side\": one switch has no complementary one to wait for",
+            ));
+        }
         Ok(Self {
             supply_v: params.supply_v,
             params,
@@ -328,7 +295,7 @@ impl Bridge {
                 state: BridgeState::AllOff,
             }; 5],
             len: 0,
-            sign: direction_sign(command),
+            sign: self.sign(command),
         };
         self.lay_out(command, |start_s, end_s, state| p.push(start_s, end_s, state));
         p
@@ -355,7 +322,16 @@ impl Bridge {
         });
         Mix {
             shares: [drive, recirculate, dead, off],
-            sign: direction_sign(command),
+            sign: self.sign(command),
+        }
+    }
+
+    /// +1 forward, -1 reverse; a low-side switch drives one way only.
+    #[inline]
+    fn sign(&self, command: &DriveCommand) -> f64 {
+        match self.params.topology {
+            Topology::HBridge => direction_sign(command),
+            Topology::LowSide => 1.0,
         }
     }
 
@@ -369,13 +345,15 @@ impl Bridge {
         } else {
             0.0
         };
-        if !command.enabled {
+        let low_side = self.params.topology == Topology::LowSide;
+        // A low-side switch cannot reverse: a reverse command leaves it off.
+        if !command.enabled || (low_side && command.direction == Direction::Reverse) {
             emit(0.0, t, BridgeState::AllOff);
             return;
         }
-        let off = match self.params.decay {
-            Decay::Slow => BridgeState::Recirculate,
-            Decay::Fast => BridgeState::AllOff,
+        let off = match (low_side, self.params.decay) {
+            (false, Decay::Slow) => BridgeState::Recirculate,
+            _ => BridgeState::AllOff,
         };
         if duty <= 0.0 {
             emit(0.0, t, off);
@@ -387,9 +365,9 @@ impl Bridge {
         }
         let t1 = 0.5 * (1.0 - duty) * t;
         let t2 = 0.5 * (1.0 + duty) * t;
-        let td = match self.params.decay {
-            Decay::Slow => self.params.dead_time_s,
-            Decay::Fast => 0.0,
+        let td = match (low_side, self.params.decay) {
+            (false, Decay::Slow) => self.params.dead_time_s,
+            _ => 0.0,
         };
         emit(0.0, t1, off);
         let on_start = (t1 + td).min(t2);
@@ -445,6 +423,9 @@ impl Bridge {
     fn output_in_frame(&self, state: BridgeState, sign: f64, i: f64, drop: f64) -> Output {
         let p = &self.params;
         let vd = p.diode_drop_v;
+        if p.topology == Topology::LowSide {
+            return self.low_side(state, i, drop);
+        }
         // Supply current first (it sets the bus), then the voltage on the load.
         let supply_a = match state {
             BridgeState::Drive => i,
@@ -469,6 +450,11 @@ impl Bridge {
         }
     }
 }
+
+mod low_side;
+mod pattern;
+pub use low_side::Topology;
+pub use pattern::{Interval, Pattern};
 
 #[cfg(test)]
 mod tests;

@@ -103,3 +103,43 @@ fn the_mix_holds_each_state_for_its_time_in_the_pattern() {
         }
     }
 }
+
+#[test]
+fn a_low_side_switch_drives_one_way_and_freewheels_through_its_diode() {
+    let mut p = BridgeParams::ideal(24.0, 20e3);
+    p.topology = Topology::LowSide;
+    p.switch = SwitchDrop::OnResistance(0.1);
+    p.diode_drop_v = 0.7;
+    p.source_resistance_ohm = 0.5;
+    let b = Bridge::new(p).unwrap();
+    assert!(b.one_way());
+    // Centred pulse, the freewheel diode either side, no dead time.
+    let pat = b.pattern(&cmd(0.5, Direction::Forward));
+    let states: Vec<_> = pat.intervals().iter().map(|iv| iv.state).collect();
+    use BridgeState::*;
+    assert_eq!(states, [AllOff, Drive, AllOff]);
+    // A reverse command leaves the switch off all period.
+    let states: Vec<_> = b
+        .pattern(&cmd(0.5, Direction::Reverse))
+        .intervals()
+        .iter()
+        .map(|iv| iv.state)
+        .collect();
+    assert_eq!(states, [AllOff]);
+    // On: the bus (23 V at 2 A through 0.5 ohm) less one switch's drop.
+    let on = b.output(Drive, 1.0, 2.0);
+    assert!((on.bus_v - 23.0).abs() < 1e-12 && (on.terminal_v - 22.8).abs() < 1e-12 && on.supply_a == 2.0);
+    // Off: the diode's drop against a forward current, no supply current.
+    let off = b.output(AllOff, 1.0, 2.0);
+    assert!((off.terminal_v + 0.7).abs() < 1e-12 && off.supply_a == 0.0 && off.bus_v == 24.0);
+    // Off with no current: nothing; a current driven backward returns to
+    // the supply through the switch's body diode.
+    assert_eq!(b.output(AllOff, 1.0, 0.0).terminal_v, 0.0);
+    let back = b.output(AllOff, 1.0, -1.0);
+    assert!((back.terminal_v - (24.5 + 0.7)).abs() < 1e-12 && back.supply_a == -1.0);
+    // One switch in series, not two.
+    assert_eq!(p.series_resistance_ohm(), 0.1);
+    // Dead time has no meaning for one switch.
+    p.dead_time_s = 1e-6;
+    assert_eq!(Bridge::new(p).unwrap_err().field, "bridge.dead_time_s");
+}

@@ -421,9 +421,10 @@ fn configurations_the_fixed_loop_cannot_run_are_refused_by_name() {
     assert_eq!(field(FixedLoopConfig::new(base, 12, -0.01)), "bus_v_per_count");
     // A bus window beyond the bus ADC.
     assert_eq!(field(FixedLoopConfig::new(base, 12, 25.0 / 4096.0)), "max_v");
-    // Kp of 200 V/A on a 16 A sensor and a 40 V bus ADC.
+    // Kp of 5000 V/A on a 16 A sensor and a 40 V bus ADC: 2000 full scales
+    // of voltage per full scale of current, beyond 8 x 64.
     let hot = Board {
-        kp: 200.0,
+        kp: 5000.0,
         ..Board::demo()
     }
     .config();

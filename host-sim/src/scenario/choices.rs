@@ -1,0 +1,79 @@
+//! The scenario's choices of firmware arithmetic and drive topology, and
+//! the fields that only make sense with one of them.
+
+use super::ScenarioError;
+use super::file::{ArithmeticName, BridgeSection, ControllerSection, TopologyName};
+use super::params::FixedPointParams;
+use crate::model_error::ModelError;
+use crate::plant::bridge::Topology;
+
+/// The drive: an H-bridge unless `topology = "low_side"`, which has no
+/// decay mode to choose.
+pub(super) fn topology(b: &BridgeSection) -> Result<Topology, ScenarioError> {
+    match b.topology {
+        Some(TopologyName::LowSide) => {
+            if b.decay.is_some() {
+                return Err(ModelError::new(
+                    "bridge.decay",
+                    "(given)",
+                    "left out with topology = \"low_side\" (one switch has one off-state: the freewheel diode)",
+                )
+                .into());
+            }
+            Ok(Topology::LowSide)
+        }
+        _ => Ok(Topology::HBridge),
+    }
+}
+
+/// The fixed-point loop's settings: the bus ADC only with `arithmetic =
+/// "fixed"`, and its full scale required there (nothing else says how the
+/// bus voltage becomes counts); no feedforward and no speed limit there.
+pub(super) fn fixed_point(c: &ControllerSection) -> Result<Option<FixedPointParams>, ScenarioError> {
+    let fixed = c.arithmetic == Some(ArithmeticName::Fixed);
+    let why = "left out unless arithmetic = \"fixed\" (only the fixed-point loop reads the bus in counts)";
+    let needs_float = "0 (left out) with arithmetic = \"fixed\": the fixed-point loop has no feedforward and reads no speed";
+    let checks = [
+        ("controller.bus_adc_bits", !fixed && c.bus_adc_bits.is_some(), why),
+        (
+            "controller.bus_full_scale_v",
+            !fixed && c.bus_full_scale_v.is_some(),
+            why,
+        ),
+        (
+            "controller.feedforward_resistance_ohm",
+            fixed && c.feedforward_resistance_ohm != 0.0,
+            needs_float,
+        ),
+        (
+            "controller.feedforward_back_emf_v_s_per_rad",
+            fixed && c.feedforward_back_emf_v_s_per_rad != 0.0,
+            needs_float,
+        ),
+        (
+            "controller.protection.max_speed_rad_s",
+            fixed && c.protection.max_speed_rad_s.is_some(),
+            needs_float,
+        ),
+    ];
+    if let Some((name, _, needs)) = checks.iter().find(|(_, bad, _)| *bad) {
+        return Err(ModelError::new(*name, "(given)", *needs).into());
+    }
+    if !fixed {
+        return Ok(None);
+    }
+    let bits = c.bus_adc_bits.unwrap_or(12);
+    ModelError::within("controller.bus_adc_bits", bits as f64, 2.0, 15.0)?;
+    let fs = c.bus_full_scale_v.ok_or_else(|| {
+        ModelError::new(
+            "controller.bus_full_scale_v",
+            "(missing)",
+            "given with arithmetic = \"fixed\": the bus voltage of a full-scale reading of the bus ADC",
+        )
+    })?;
+    ModelError::within("controller.bus_full_scale_v", fs, 1e-3, 1e5)?;
+    Ok(Some(FixedPointParams {
+        bus_adc_bits: bits,
+        bus_full_scale_v: fs,
+    }))
+}
