@@ -266,6 +266,44 @@ pub enum LoopState {
     Exciting,
 }
 
+/// The state machine's rules, written once for the float and the fixed-point
+/// loops (see the module notes).
+impl LoopState {
+    /// Whether a new setpoint may be taken: refused while faulted (with the
+    /// latched causes) or exciting.
+    pub(crate) fn takes_setpoint(self, latched: FaultSet) -> Result<(), CommandError> {
+        match self {
+            LoopState::Faulted => Err(CommandError::Faulted(latched)),
+            LoopState::Exciting => Err(CommandError::Exciting),
+            _ => Ok(()),
+        }
+    }
+
+    /// The state after an enable: refused while anything is latched or an
+    /// excitation runs; `Running`, and whether the PI starts from rest (it
+    /// does unless the loop was running already).
+    pub(crate) fn enabled(self, latched: FaultSet) -> Result<(LoopState, bool), CommandError> {
+        if !latched.is_empty() {
+            return Err(CommandError::Faulted(latched));
+        }
+        match self {
+            LoopState::Exciting => Err(CommandError::Exciting),
+            LoopState::Running => Ok((LoopState::Running, false)),
+            _ => Ok((LoopState::Running, true)),
+        }
+    }
+
+    /// The state after the supervisor accepted a clear: `Faulted` becomes
+    /// `Disabled`, never straight `Running`.
+    pub(crate) fn cleared(self) -> LoopState {
+        if self == LoopState::Faulted {
+            LoopState::Disabled
+        } else {
+            self
+        }
+    }
+}
+
 /// The inputs of one control tick.
 #[derive(Clone, Copy, Debug, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
@@ -690,12 +728,7 @@ impl CurrentLoop {
     fn carry_out(&mut self, command: Command) -> Result<Acceptance, CommandError> {
         match command {
             Command::SetCurrent(a) => {
-                if self.state == LoopState::Faulted {
-                    return Err(CommandError::Faulted(self.supervisor.latched()));
-                }
-                if self.state == LoopState::Exciting {
-                    return Err(CommandError::Exciting);
-                }
+                self.state.takes_setpoint(self.supervisor.latched())?;
                 self.setpoint.request(a)
             }
             Command::Retune(gains) => {
@@ -703,17 +736,11 @@ impl CurrentLoop {
                 Ok(Acceptance::Exact)
             }
             Command::Enable => {
-                let latched = self.supervisor.latched();
-                if !latched.is_empty() {
-                    return Err(CommandError::Faulted(latched));
-                }
-                if self.state == LoopState::Exciting {
-                    return Err(CommandError::Exciting);
-                }
-                if self.state != LoopState::Running {
+                let (state, from_rest) = self.state.enabled(self.supervisor.latched())?;
+                if from_rest {
                     self.pi.reset();
-                    self.state = LoopState::Running;
                 }
+                self.state = state;
                 Ok(Acceptance::Exact)
             }
             Command::Disable => {
@@ -745,9 +772,7 @@ impl CurrentLoop {
             }
             Command::ClearFaults => {
                 self.supervisor.clear()?;
-                if self.state == LoopState::Faulted {
-                    self.state = LoopState::Disabled;
-                }
+                self.state = self.state.cleared();
                 Ok(Acceptance::Exact)
             }
         }

@@ -38,7 +38,7 @@
 //! ([`FixedLoopConfig::retune`]), so the interrupt that applies them does no
 //! float arithmetic.
 
-use crate::error::{ClearRefused, CommandError, ConfigError, Requirement, positive};
+use crate::error::{CommandError, ConfigError, Requirement, positive};
 use crate::fault::{Fault, FaultSet};
 use crate::output::{Direction, DriveCommand};
 use crate::pi::PiGains;
@@ -569,9 +569,7 @@ impl FixedLoop {
     pub fn apply(&mut self, command: FixedCommand) -> Result<FixedAcceptance, CommandError> {
         match command {
             FixedCommand::SetCurrent(q) => {
-                if self.state == LoopState::Faulted {
-                    return Err(CommandError::Faulted(self.supervisor.latched()));
-                }
+                self.state.takes_setpoint(self.supervisor.latched())?;
                 let asked = Fixed::from_q15(q);
                 let applied = asked.0.max(self.sp_min.0).min(self.sp_max.0);
                 self.target = Fixed(applied);
@@ -588,14 +586,11 @@ impl FixedLoop {
                 Ok(FixedAcceptance::Exact)
             }
             FixedCommand::Enable => {
-                let latched = self.supervisor.latched();
-                if !latched.is_empty() {
-                    return Err(CommandError::Faulted(latched));
-                }
-                if self.state != LoopState::Running {
+                let (state, from_rest) = self.state.enabled(self.supervisor.latched())?;
+                if from_rest {
                     self.pi.reset();
-                    self.state = LoopState::Running;
                 }
+                self.state = state;
                 Ok(FixedAcceptance::Exact)
             }
             FixedCommand::Disable => {
@@ -607,12 +602,8 @@ impl FixedLoop {
                 Ok(FixedAcceptance::Exact)
             }
             FixedCommand::ClearFaults => {
-                self.supervisor
-                    .clear()
-                    .map_err(|e: ClearRefused| CommandError::ClearRefused(e))?;
-                if self.state == LoopState::Faulted {
-                    self.state = LoopState::Disabled;
-                }
+                self.supervisor.clear()?;
+                self.state = self.state.cleared();
                 Ok(FixedAcceptance::Exact)
             }
         }
