@@ -30,7 +30,7 @@ fn main() {
     let mut last = 0.0;
     for _ in 0..3 {
         let chain = DriveChain {
-            motor: Motor::new(MotorParams::rl(r, l)).unwrap(),
+            load: Box::new(Motor::new(MotorParams::rl(r, l)).unwrap()),
             bridge: Bridge::new(BridgeParams::ideal(48.0, 1.0 / ts)).unwrap(),
             sense: SenseChain::new(SenseParams::ideal(0.01, 20.0, 12, 3.3)).unwrap(),
             injectors: Injectors::default(),

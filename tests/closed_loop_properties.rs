@@ -141,7 +141,7 @@ fn build(p: &Plant, o: Options) -> (CurrentLoop, Runner) {
     let mut sense = SenseParams::ideal(shunt, gain, 12, 3.3);
     sense.noise_rms_v = o.noise_v;
     let chain = DriveChain {
-        motor: Motor::new(motor).unwrap(),
+        load: Box::new(Motor::new(motor).unwrap()),
         bridge: Bridge::new(bridge).unwrap(),
         sense: SenseChain::new(sense).unwrap(),
         injectors: Injectors::new(o.faults).unwrap(),
@@ -417,7 +417,7 @@ proptest! {
         // Back-EMF ten times the bus: the current runs away fast on any winding.
         let events = vec![ev(&p, 0, Command::Enable)];
         let (mut cl, mut run) = build(&p, Options { locked: false, noise_v: 0.0, stuck: false, faults: vec![], events });
-        run.chain_mut().motor.set_speed_rad_s(10.0 * p.bus_v / p.ke);
+        run.chain_mut().load.motor_mut().unwrap().set_speed_rad_s(10.0 * p.bus_v / p.ke);
         run.run_ticks(&mut cl, 300 + ((0.5 * p.tau_s() / p.period_s) as u64).min(20_000));
         let pts = &run.trace().points;
         check_every_tick(pts)?;

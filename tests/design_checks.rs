@@ -242,7 +242,7 @@ fn direct_discrete_design_places_the_poles_exactly() {
 /// winding, one-sample delay) for a unit step.
 fn simulate(plant: (f64, f64), ts: f64, g: &Gains<f64>, ticks: u64) -> Vec<f64> {
     let chain = DriveChain {
-        motor: Motor::new(MotorParams::rl(plant.0, plant.1)).unwrap(),
+        load: Box::new(Motor::new(MotorParams::rl(plant.0, plant.1)).unwrap()),
         bridge: Bridge::new(BridgeParams::ideal(48.0, 1.0 / ts)).unwrap(),
         sense: SenseChain::new(SenseParams::ideal(0.01, 20.0, 12, 3.3)).unwrap(),
         injectors: Injectors::default(),

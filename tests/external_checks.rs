@@ -51,7 +51,7 @@ impl Controller for FixedDuty {
 
 fn chain(motor: MotorParams, bridge: BridgeParams) -> DriveChain {
     DriveChain {
-        motor: Motor::new(motor).unwrap(),
+        load: Box::new(Motor::new(motor).unwrap()),
         bridge: Bridge::new(bridge).unwrap(),
         sense: SenseChain::new(SenseParams::ideal(0.01, 20.0, 12, 3.3)).unwrap(),
         injectors: Injectors::default(),

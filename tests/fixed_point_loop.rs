@@ -66,7 +66,7 @@ fn bounds(s: &Scenario, fixed: &Scenario) -> Bounds {
     let volt_step_v = config.scale().voltage_full_scale_v() as f64 / 32768.0;
     Bounds {
         period_s: s.timing.control_period_s(),
-        delta_a: count_a(s) + volt_step_v / s.chain.motor.params().resistance_ohm,
+        delta_a: count_a(s) + volt_step_v / s.chain.load.resistance_ohm(),
     }
 }
 

@@ -105,7 +105,7 @@ pub fn current_loop() -> Result<CurrentLoop, ConfigError> {
 pub fn bench() -> Runner {
     let build = || -> Result<Runner, crate::model_error::ModelError> {
         let chain = DriveChain {
-            motor: Motor::new(MotorParams::rl(RESISTANCE_OHM, INDUCTANCE_H))?,
+            load: Box::new(Motor::new(MotorParams::rl(RESISTANCE_OHM, INDUCTANCE_H))?),
             bridge: Bridge::new(BridgeParams::ideal(BUS_V, 1.0 / PERIOD_S as f64))?,
             sense: SenseChain::new(SenseParams::ideal(
                 SHUNT_OHM as f64,

@@ -202,8 +202,7 @@ fn write_files(
     super::write_with(&svg, |f| f.write_all(doc.as_bytes()))?;
     written.push(svg.display().to_string());
     // A long run where heat matters gets its own picture.
-    let heats = scenario.chain.motor.params().thermal.is_some()
-        || scenario.loop_config.supervisor().thermal().is_some();
+    let heats = scenario.chain.load.heats() || scenario.loop_config.supervisor().thermal().is_some();
     if heats && scenario.duration_s >= LONG_RUN_S {
         let path = dir.join(format!("{stem}-thermal.svg"));
         let doc = long_run_svg(

@@ -3,6 +3,7 @@
 //! controller, the scenario format, the results or the plots: the scenario
 //! builds them and the runner steps them.
 //!
+//! * [`load`]: what the runner needs of a load; the loads implement it.
 //! * [`motor`]: `L di/dt = v - R i - Ke w`, `J dw/dt = Kt i - B w - Tc - T_load`,
 //!   copper heating; the linear part is advanced with its exact solution
 //!   ([`linear`]), so an RL step carries no integration error.
@@ -19,6 +20,7 @@
 pub mod bridge;
 pub mod faults;
 pub mod linear;
+pub mod load;
 pub mod motor;
 pub mod noise;
 pub mod saturation;

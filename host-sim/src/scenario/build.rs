@@ -160,7 +160,7 @@ impl Params {
             duration_s: self.duration_s,
             record_every_ticks: self.record_every_ticks,
             chain: DriveChain {
-                motor,
+                load: Box::new(motor),
                 bridge,
                 sense,
                 injectors,

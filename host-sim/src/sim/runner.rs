@@ -6,7 +6,7 @@
 //! 1. applies the fault injectors for that moment (supply level, held rotor,
 //!    extra load torque);
 //! 2. loads the drive command whose time has come (see [`crate::plant::timing`]);
-//! 3. asks the bridge for the period's intervals and steps the motor through them
+//! 3. asks the bridge for the period's intervals and steps the load through them
 //!    (switching mode), or through their mean voltage (averaged mode), stopping at
 //!    the sampling instant when a control tick falls in this period;
 //! 4. at the sampling instant converts the filtered sense signal, passes the
@@ -27,7 +27,8 @@ pub use super::controller::{Controller, ControllerView, LinearPi, Measurement};
 
 use crate::plant::bridge::{Bridge, BridgeState, Modulation, Output, Pattern};
 use crate::plant::faults::Injectors;
-use crate::plant::motor::{Motor, MotorDrive};
+use crate::plant::load::Load;
+use crate::plant::motor::MotorDrive;
 use crate::plant::sense_chain::SenseChain;
 use crate::plant::timing::Timing;
 use crate::sim::trace::{EdgePoint, LogEntry, Trace, TracePoint};
@@ -44,8 +45,8 @@ pub struct Event {
 /// The plant side of the loop.
 #[derive(Clone, Debug)]
 pub struct DriveChain {
-    /// The motor.
-    pub motor: Motor,
+    /// The load between the bridge's terminals (a motor, a winding, ...).
+    pub load: Box<dyn Load>,
     /// The bridge.
     pub bridge: Bridge,
     /// The current-sense chain.
@@ -243,14 +244,14 @@ impl Runner {
             Modulation::Averaged => {
                 let mix = self.chain.bridge.mix(&self.active);
                 let clamped = mix.diode_clamped();
-                let mut mean = self.chain.bridge.mean_output(&mix, self.chain.motor.current_a());
+                let mut mean = self.chain.bridge.mean_output(&mix, self.chain.load.current_a());
                 let mut done = 0.0;
                 if tick_here && sample_at > 0.0 {
                     self.averaged(&mean, clamped, &drive, sample_at);
                     done = sample_at;
                     // The bus at the sample and the rest of the period's drive both
                     // follow from the current now.
-                    mean = self.chain.bridge.mean_output(&mix, self.chain.motor.current_a());
+                    mean = self.chain.bridge.mean_output(&mix, self.chain.load.current_a());
                 }
                 if tick_here {
                     tick = Some(self.sample(controller, t0 + sample_at, mean.bus_v, self.period));
@@ -265,7 +266,7 @@ impl Runner {
     /// The bus voltage at the bridge now, in the state at `at_s` into the period
     /// (switching mode).
     fn bus_now(&self, pattern: &Pattern, at_s: f64) -> f64 {
-        let i = self.chain.motor.current_a();
+        let i = self.chain.load.current_a();
         self.chain
             .bridge
             .output(pattern.state_at(at_s), pattern.sign, i)
@@ -288,12 +289,12 @@ impl Runner {
         if dt_s <= 0.0 {
             return;
         }
-        let i0 = self.chain.motor.current_a();
+        let i0 = self.chain.load.current_a();
         let out = self.chain.bridge.output(state, pattern.sign, i0);
         if state.diode_clamped() {
             self.clamped_step(out.terminal_v, drive, dt_s);
         } else {
-            self.chain.motor.step(
+            self.chain.load.step(
                 &MotorDrive {
                     terminal_v: out.terminal_v,
                     ..*drive
@@ -301,7 +302,7 @@ impl Runner {
                 dt_s,
             );
         }
-        let i1 = self.chain.motor.current_a();
+        let i1 = self.chain.load.current_a();
         self.chain.sense.advance(i1, dt_s);
         self.charge_a_s += out.supply_a * dt_s;
         self.charge_time_s += dt_s;
@@ -316,36 +317,36 @@ impl Runner {
 
     /// A step in which only diodes conduct: the current stops at zero.
     fn clamped_step(&mut self, terminal_v: f64, drive: &MotorDrive, dt_s: f64) {
-        let motor = &mut self.chain.motor;
+        let load = &mut self.chain.load;
         let mut rest = dt_s;
-        if motor.current_a() != 0.0 {
-            match motor.time_to_zero_s(terminal_v, dt_s) {
+        if load.current_a() != 0.0 {
+            match load.time_to_zero_s(terminal_v, dt_s) {
                 None => {
-                    let i0 = motor.current_a();
-                    motor.step(&MotorDrive { terminal_v, ..*drive }, dt_s);
-                    if motor.current_a() * i0 < 0.0 {
-                        motor.stop_current();
+                    let i0 = load.current_a();
+                    load.step(&MotorDrive { terminal_v, ..*drive }, dt_s);
+                    if load.current_a() * i0 < 0.0 {
+                        load.stop_current();
                     }
                     return;
                 }
                 Some(t) => {
-                    motor.step(&MotorDrive { terminal_v, ..*drive }, t);
-                    motor.stop_current();
+                    load.step(&MotorDrive { terminal_v, ..*drive }, t);
+                    load.stop_current();
                     rest = dt_s - t;
                 }
             }
         }
         if rest > 0.0 {
             // No current: the terminals float at the back-EMF.
-            let floating = motor.back_emf_v();
-            motor.step(
+            let floating = load.open_circuit_v();
+            load.step(
                 &MotorDrive {
                     terminal_v: floating,
                     ..*drive
                 },
                 rest,
             );
-            motor.stop_current();
+            load.stop_current();
         }
     }
 
@@ -360,11 +361,11 @@ impl Runner {
         self.charge_time_s += dt_s;
         // A one-way drive's current that the mean voltage pulls down stops at
         // zero, as its diode would within the period.
-        let falling = self.chain.bridge.one_way() && mean.terminal_v < self.chain.motor.back_emf_v();
+        let falling = self.chain.bridge.one_way() && mean.terminal_v < self.chain.load.open_circuit_v();
         if clamped || falling {
             self.clamped_step(mean.terminal_v, drive, dt_s);
         } else {
-            self.chain.motor.step(
+            self.chain.load.step(
                 &MotorDrive {
                     terminal_v: mean.terminal_v,
                     ..*drive
@@ -372,7 +373,7 @@ impl Runner {
                 dt_s,
             );
         }
-        let i1 = self.chain.motor.current_a();
+        let i1 = self.chain.load.current_a();
         self.chain.sense.advance(i1, dt_s);
     }
 
@@ -408,7 +409,7 @@ impl Runner {
         note.sensor_fault = counts != raw;
         let nominal = self.chain.bridge.params().supply_v;
         note.bus_event = self.chain.injectors.supply_v(t_s, nominal) != nominal;
-        let speed = self.chain.motor.speed_rad_s();
+        let speed = self.chain.load.speed_rad_s();
         let m = Measurement {
             counts,
             filtered_a: self.chain.sense.filtered_a(),
@@ -432,7 +433,7 @@ impl Runner {
             t_s,
             request_a: self.request_a,
             setpoint_a: view.setpoint_a,
-            current_a: self.chain.motor.current_a(),
+            current_a: self.chain.load.current_a(),
             measured_a: view.measured_a,
             counts,
             commanded_v: view.commanded_v,
@@ -441,7 +442,7 @@ impl Runner {
             speed_rad_s: speed,
             bus_v,
             supply_a,
-            winding_c: self.chain.motor.temperature_c(),
+            winding_c: self.chain.load.temperature_c(),
             fault_bits: view.fault_bits,
             state: view.state,
             i2t_level: view.i2t_level,

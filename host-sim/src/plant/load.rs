@@ -1,0 +1,96 @@
+//! What the runner needs of a load between the bridge's terminals, and
+//! nothing more: stepped over an interval with its terminal voltage held,
+//! its current, whether and when that current reaches zero (a diode stops
+//! it there), and the voltage its terminals float at with no current. The
+//! motor is one load ([`super::motor`]); a plain winding with a constant
+//! counter-voltage another ([`super::rl`]). Adding a load is a file of its
+//! own implementing [`Load`], and its section in the scenario.
+
+use std::fmt;
+
+use super::motor::{Motor, MotorDrive};
+
+/// A load the runner steps.
+pub trait Load: fmt::Debug + Send + Sync {
+    /// Advances `dt_s` seconds with the drive held; returns the new current,
+    /// amperes (positive forward).
+    fn step(&mut self, drive: &MotorDrive, dt_s: f64) -> f64;
+    /// The current, amperes.
+    fn current_a(&self) -> f64;
+    /// Sets the current to exactly zero (a diode stopped conducting).
+    fn stop_current(&mut self);
+    /// The time for the current to reach zero under `terminal_v` held, or
+    /// `None` if it does not within `within_s`.
+    fn time_to_zero_s(&self, terminal_v: f64, within_s: f64) -> Option<f64>;
+    /// The voltage across the terminals with no current flowing, volts: a
+    /// motor's back-EMF, a source's counter-voltage.
+    fn open_circuit_v(&self) -> f64;
+    /// Shaft speed, rad/s (0 for a load without a shaft).
+    fn speed_rad_s(&self) -> f64 {
+        0.0
+    }
+    /// Winding temperature, C.
+    fn temperature_c(&self) -> f64;
+    /// Present resistance, ohm.
+    fn resistance_ohm(&self) -> f64;
+    /// Whether its copper heats (a thermal model is on).
+    fn heats(&self) -> bool {
+        false
+    }
+    /// The motor, when the load is one.
+    fn motor(&self) -> Option<&Motor> {
+        None
+    }
+    /// The motor, when the load is one, to set its state.
+    fn motor_mut(&mut self) -> Option<&mut Motor> {
+        None
+    }
+    /// A boxed copy (a run's chain is cloned for sweeps and second runs).
+    fn boxed(&self) -> Box<dyn Load>;
+}
+
+impl Clone for Box<dyn Load> {
+    fn clone(&self) -> Self {
+        self.boxed()
+    }
+}
+
+impl Load for Motor {
+    #[inline]
+    fn step(&mut self, drive: &MotorDrive, dt_s: f64) -> f64 {
+        Motor::step(self, drive, dt_s)
+    }
+    fn current_a(&self) -> f64 {
+        Motor::current_a(self)
+    }
+    fn stop_current(&mut self) {
+        Motor::stop_current(self)
+    }
+    fn time_to_zero_s(&self, terminal_v: f64, within_s: f64) -> Option<f64> {
+        Motor::time_to_zero_s(self, terminal_v, within_s)
+    }
+    fn open_circuit_v(&self) -> f64 {
+        self.back_emf_v()
+    }
+    fn speed_rad_s(&self) -> f64 {
+        Motor::speed_rad_s(self)
+    }
+    fn temperature_c(&self) -> f64 {
+        Motor::temperature_c(self)
+    }
+    fn resistance_ohm(&self) -> f64 {
+        Motor::resistance_ohm(self)
+    }
+    fn heats(&self) -> bool {
+        self.params().thermal.is_some()
+    }
+    fn motor(&self) -> Option<&Motor> {
+        Some(self)
+    }
+    fn motor_mut(&mut self) -> Option<&mut Motor> {
+        Some(self)
+    }
+    fn boxed(&self) -> Box<dyn Load> {
+        Box::new(self.clone())
+    }
+}
