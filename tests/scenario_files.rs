@@ -111,7 +111,14 @@ fn malformed_scenarios_name_the_field_in_one_sentence() {
             demo_with("current_a = 1.5", "currant_a = 1.5"),
             "unknown field `currant_a`",
         ),
-        ("duration_s = 1\n".to_string(), "missing field `motor`"),
+        ("duration_s = 1\n".to_string(), "missing field `bridge`"),
+        (
+            format!(
+                "{}\n[winding]\nresistance_ohm = 1.0\ninductance_h = 1e-3\n",
+                demo_with("", "")
+            ),
+            "winding = (given) must be left out when [motor] is given",
+        ),
         ("this is not toml".to_string(), "scenario line 1"),
     ];
     for (text, expected) in cases {

@@ -7,6 +7,7 @@
 //! * [`motor`]: `L di/dt = v - R i - Ke w`, `J dw/dt = Kt i - B w - Tc - T_load`,
 //!   copper heating; the linear part is advanced with its exact solution
 //!   ([`linear`]), so an RL step carries no integration error.
+//! * [`rl`]: `L di/dt = v - R i - E`, a winding with a constant counter-voltage.
 //! * [`bridge`]: sign-magnitude H-bridge with centre-aligned PWM, dead time,
 //!   switch and diode drops, slow or fast decay, a soft supply; averaged or
 //!   edge by edge.
@@ -23,6 +24,7 @@ pub mod linear;
 pub mod load;
 pub mod motor;
 pub mod noise;
+pub mod rl;
 pub mod saturation;
 pub mod sense_chain;
 pub mod timing;

@@ -16,7 +16,9 @@ use super::{Scenario, ScenarioError};
 use crate::model_error::ModelError;
 use crate::plant::bridge::{Bridge, Topology};
 use crate::plant::faults::{FaultKind, Injectors};
+use crate::plant::load::Load;
 use crate::plant::motor::Motor;
+use crate::plant::rl::{RlLoad, RlParams};
 use crate::plant::sense_chain::SenseChain;
 use crate::plant::timing::Timing;
 use crate::sim::controller::{FixedFirmware, LoopUnderTest};
@@ -65,7 +67,14 @@ impl Params {
     }
 
     fn assemble(&self, gains: GainParams, default_weight: f64) -> Result<Scenario, ScenarioError> {
-        let motor = Motor::new(self.motor)?;
+        let load: Box<dyn Load> = match self.winding_counter_v {
+            Some(counter_v) => Box::new(RlLoad::new(RlParams {
+                resistance_ohm: self.motor.resistance_ohm,
+                inductance_h: self.motor.inductance_h,
+                counter_v,
+            })?),
+            None => Box::new(Motor::new(self.motor)?),
+        };
         let bridge = Bridge::new(self.bridge)?;
         let sense = SenseChain::new(self.sense)?;
         let timing = Timing::new(self.timing, bridge.pwm_period_s())?;
@@ -160,7 +169,7 @@ impl Params {
             duration_s: self.duration_s,
             record_every_ticks: self.record_every_ticks,
             chain: DriveChain {
-                load: Box::new(motor),
+                load,
                 bridge,
                 sense,
                 injectors,

@@ -1,11 +1,34 @@
-//! The scenario's choices of firmware arithmetic and drive topology, and
-//! the fields that only make sense with one of them.
+//! The scenario's choices of load, firmware arithmetic and drive topology,
+//! and the fields that only make sense with one of them.
 
 use super::ScenarioError;
-use super::file::{ArithmeticName, BridgeSection, ControllerSection, TopologyName};
+use super::file::{ArithmeticName, BridgeSection, ControllerSection, File, TopologyName};
 use super::params::FixedPointParams;
 use crate::model_error::ModelError;
 use crate::plant::bridge::Topology;
+use crate::plant::motor::MotorParams;
+
+/// The load: a `[motor]`, or a `[winding]` (a held R-L with a counter-voltage,
+/// carried as a locked-rotor motor's R and L plus the counter-voltage).
+pub(super) fn load(f: &File) -> Result<(MotorParams, Option<f64>), ScenarioError> {
+    match (&f.motor, &f.winding) {
+        (Some(m), None) => Ok((super::convert::motor(m)?, None)),
+        (None, Some(w)) => Ok((
+            MotorParams::rl(w.resistance_ohm, w.inductance_h),
+            Some(w.counter_v),
+        )),
+        (Some(_), Some(_)) => Err(ModelError::new(
+            "winding",
+            "(given)",
+            "left out when [motor] is given: a scenario has one load",
+        )
+        .into()),
+        (None, None) => Err(super::convert::missing(
+            "motor".into(),
+            "a [motor] or a [winding] section: the load".into(),
+        )),
+    }
+}
 
 /// The drive: an H-bridge unless `topology = "low_side"`, which has no
 /// decay mode to choose.

@@ -7,8 +7,8 @@ use pi_core::{Fault, TripClass};
 use super::ScenarioError;
 use super::choices;
 use super::file::{
-    ActionName, AntiWindupName, DecayName, FaultCause, FaultName, File, FilterKind, ModeName, RuleName,
-    TripClassName,
+    ActionName, AntiWindupName, DecayName, FaultCause, FaultName, File, FilterKind, ModeName, MotorSection,
+    RuleName, TripClassName,
 };
 use super::params::{
     AntiWindupParams, ControllerParams, EventAction, EventParams, GainParams, MAX_DURATION_S, OverloadCurve,
@@ -22,16 +22,8 @@ use crate::plant::sense_chain::{SenseFilter, SenseParams};
 use crate::plant::timing::TimingParams;
 use crate::spec::{Expectations, Spec};
 
-fn missing(field: String, needs: String) -> ScenarioError {
-    ModelError::new(field, "(missing)", needs).into()
-}
-
-pub(super) fn from_file(f: File, fallback_name: &str) -> Result<Params, ScenarioError> {
-    let duration_s = ModelError::within("duration_s", f.duration_s, 1e-9, MAX_DURATION_S)?;
-    if f.record_every_ticks == 0 {
-        return Err(ModelError::new("record_every_ticks", 0, "a whole number of at least 1").into());
-    }
-    let m = &f.motor;
+/// A `[motor]` section's parameters.
+pub(super) fn motor(m: &MotorSection) -> Result<MotorParams, ScenarioError> {
     let inertia = match (m.inertia_kg_m2, m.locked_rotor) {
         (Some(j), _) => j,
         (None, true) => 1.0,
@@ -78,6 +70,19 @@ pub(super) fn from_file(f: File, fallback_name: &str) -> Result<Params, Scenario
             }
         },
     };
+    Ok(motor)
+}
+
+pub(super) fn missing(field: String, needs: String) -> ScenarioError {
+    ModelError::new(field, "(missing)", needs).into()
+}
+
+pub(super) fn from_file(f: File, fallback_name: &str) -> Result<Params, ScenarioError> {
+    let duration_s = ModelError::within("duration_s", f.duration_s, 1e-9, MAX_DURATION_S)?;
+    if f.record_every_ticks == 0 {
+        return Err(ModelError::new("record_every_ticks", 0, "a whole number of at least 1").into());
+    }
+    let (motor, winding_counter_v) = choices::load(&f)?;
     let b = &f.bridge;
     let switch = match (b.rds_on_ohm, b.switch_drop_v) {
         (Some(r), None) => SwitchDrop::OnResistance(r),
@@ -250,6 +255,7 @@ pub(super) fn from_file(f: File, fallback_name: &str) -> Result<Params, Scenario
         duration_s,
         record_every_ticks: f.record_every_ticks,
         motor,
+        winding_counter_v,
         bridge,
         sense,
         timing,

@@ -97,7 +97,9 @@ pub(super) struct File {
     /// Keep one trace point in this many ticks (default 1: every tick).
     #[serde(default = "one")]
     pub(super) record_every_ticks: u64,
-    pub(super) motor: MotorSection,
+    /// The load: a motor, or a plain winding (exactly one of the two).
+    pub(super) motor: Option<MotorSection>,
+    pub(super) winding: Option<WindingSection>,
     pub(super) bridge: BridgeSection,
     pub(super) sense: SenseSection,
     pub(super) timing: TimingSection,
@@ -137,6 +139,15 @@ pub(super) struct VarySection {
     pub(super) normal_sigma_pct: Option<f64>,
     pub(super) normal_sigma: Option<f64>,
     pub(super) within: Option<[f64; 2]>,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub(super) struct WindingSection {
+    pub(super) resistance_ohm: f64,
+    pub(super) inductance_h: f64,
+    #[serde(default)]
+    pub(super) counter_v: f64,
 }
 
 #[derive(Debug, Deserialize)]

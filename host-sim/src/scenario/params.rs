@@ -31,8 +31,12 @@ pub struct Params {
     pub duration_s: f64,
     /// Keep one trace point in this many ticks.
     pub record_every_ticks: u64,
-    /// The motor or R-L load.
+    /// The motor or R-L load (a `[winding]` is a held R-L here, its
+    /// counter-voltage in `winding_counter_v`).
     pub motor: MotorParams,
+    /// `Some(E)`: the load is a plain winding with counter-voltage `E`
+    /// (`[winding]`), not a motor.
+    pub winding_counter_v: Option<f64>,
     /// The H-bridge.
     pub bridge: BridgeParams,
     /// The current sense chain.
