@@ -345,6 +345,7 @@ fn demo_basis(r: f64, l: f64, ts_mult: f64, overshoot_pct: f64) -> Option<Basis>
             limits: &limits,
             max_duty: 0.95,
             setpoint_max_a: 1.0,
+            linearised_at_a: None,
         },
         None,
     )

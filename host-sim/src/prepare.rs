@@ -127,6 +127,7 @@ pub fn basis(params: &Params, overrides: &Overrides) -> Result<Basis, ScenarioEr
             limits: &params.spec,
             max_duty: params.controller.max_duty,
             setpoint_max_a: params.setpoint_max_a(),
+            linearised_at_a: params.led.map(|l| l.design_current_a),
         },
         overrides.delay_periods,
     )

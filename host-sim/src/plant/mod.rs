@@ -8,6 +8,7 @@
 //!   copper heating; the linear part is advanced with its exact solution
 //!   ([`linear`]), so an RL step carries no integration error.
 //! * [`rl`]: `L di/dt = v - R i - E`, a winding with a constant counter-voltage.
+//! * [`led`]: a string of diodes (Shockley with series resistance) behind its inductor.
 //! * [`bridge`]: sign-magnitude H-bridge with centre-aligned PWM, dead time,
 //!   switch and diode drops, slow or fast decay, a soft supply; averaged or
 //!   edge by edge.
@@ -20,6 +21,7 @@
 
 pub mod bridge;
 pub mod faults;
+pub mod led;
 pub mod linear;
 pub mod load;
 pub mod motor;

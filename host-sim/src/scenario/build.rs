@@ -16,6 +16,7 @@ use super::{Scenario, ScenarioError};
 use crate::model_error::ModelError;
 use crate::plant::bridge::{Bridge, Topology};
 use crate::plant::faults::{FaultKind, Injectors};
+use crate::plant::led::LedString;
 use crate::plant::load::Load;
 use crate::plant::motor::Motor;
 use crate::plant::rl::{RlLoad, RlParams};
@@ -67,13 +68,14 @@ impl Params {
     }
 
     fn assemble(&self, gains: GainParams, default_weight: f64) -> Result<Scenario, ScenarioError> {
-        let load: Box<dyn Load> = match self.winding_counter_v {
-            Some(counter_v) => Box::new(RlLoad::new(RlParams {
+        let load: Box<dyn Load> = match (self.winding_counter_v, self.led) {
+            (_, Some(led)) => Box::new(LedString::new(led.string)?),
+            (Some(counter_v), None) => Box::new(RlLoad::new(RlParams {
                 resistance_ohm: self.motor.resistance_ohm,
                 inductance_h: self.motor.inductance_h,
                 counter_v,
             })?),
-            None => Box::new(Motor::new(self.motor)?),
+            (None, None) => Box::new(Motor::new(self.motor)?),
         };
         let bridge = Bridge::new(self.bridge)?;
         let sense = SenseChain::new(self.sense)?;

@@ -3,31 +3,72 @@
 
 use super::ScenarioError;
 use super::file::{ArithmeticName, BridgeSection, ControllerSection, File, TopologyName};
-use super::params::FixedPointParams;
+use super::params::{FixedPointParams, LedLoad};
 use crate::model_error::ModelError;
 use crate::plant::bridge::Topology;
+use crate::plant::led::{LedParams, LedString};
 use crate::plant::motor::MotorParams;
 
-/// The load: a `[motor]`, or a `[winding]` (a held R-L with a counter-voltage,
-/// carried as a locked-rotor motor's R and L plus the counter-voltage).
-pub(super) fn load(f: &File) -> Result<(MotorParams, Option<f64>), ScenarioError> {
-    match (&f.motor, &f.winding) {
-        (Some(m), None) => Ok((super::convert::motor(m)?, None)),
-        (None, Some(w)) => Ok((
-            MotorParams::rl(w.resistance_ohm, w.inductance_h),
-            Some(w.counter_v),
-        )),
-        (Some(_), Some(_)) => Err(ModelError::new(
+/// What the load of a scenario is, beside the R-L the design takes.
+pub(super) struct LoadChoice {
+    pub motor: MotorParams,
+    pub winding_counter_v: Option<f64>,
+    pub led: Option<LedLoad>,
+}
+
+/// The load: a `[motor]`, a `[winding]` (a held R-L with a counter-voltage)
+/// or an `[led]` string; exactly one. The design takes the last two as a
+/// held R-L: the winding's own R and L; the string's inductor and its slope
+/// `dv/di` at its rated current, `led.design_current_a`.
+pub(super) fn load(f: &File) -> Result<LoadChoice, ScenarioError> {
+    let given = [f.motor.is_some(), f.winding.is_some(), f.led.is_some()];
+    if given.iter().filter(|g| **g).count() > 1 {
+        return Err(ModelError::new(
             "winding",
             "(given)",
-            "left out when [motor] is given: a scenario has one load",
+            "left out when [motor] or [led] is given: a scenario has one load",
         )
-        .into()),
-        (None, None) => Err(super::convert::missing(
-            "motor".into(),
-            "a [motor] or a [winding] section: the load".into(),
-        )),
+        .into());
     }
+    if let Some(m) = &f.motor {
+        return Ok(LoadChoice {
+            motor: super::convert::motor(m)?,
+            winding_counter_v: None,
+            led: None,
+        });
+    }
+    if let Some(w) = &f.winding {
+        return Ok(LoadChoice {
+            motor: MotorParams::rl(w.resistance_ohm, w.inductance_h),
+            winding_counter_v: Some(w.counter_v),
+            led: None,
+        });
+    }
+    if let Some(l) = &f.led {
+        let led = LedParams {
+            count: l.count,
+            saturation_current_a: l.saturation_current_a,
+            ideality: l.ideality,
+            series_resistance_ohm: l.series_resistance_ohm,
+            junction_c: l.junction_c,
+            inductance_h: l.inductance_h,
+        };
+        // Validated here, so the linearisation below has a string to take.
+        LedString::new(led)?;
+        let at = ModelError::within("led.design_current_a", l.design_current_a, 1e-6, 1e3)?;
+        return Ok(LoadChoice {
+            motor: MotorParams::rl(led.slope_at(at), led.inductance_h),
+            winding_counter_v: None,
+            led: Some(LedLoad {
+                string: led,
+                design_current_a: at,
+            }),
+        });
+    }
+    Err(super::convert::missing(
+        "motor".into(),
+        "a [motor], a [winding] or an [led] section: the load".into(),
+    ))
 }
 
 /// The drive: an H-bridge unless `topology = "low_side"`, which has no

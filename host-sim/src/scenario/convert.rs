@@ -82,7 +82,11 @@ pub(super) fn from_file(f: File, fallback_name: &str) -> Result<Params, Scenario
     if f.record_every_ticks == 0 {
         return Err(ModelError::new("record_every_ticks", 0, "a whole number of at least 1").into());
     }
-    let (motor, winding_counter_v) = choices::load(&f)?;
+    let choices::LoadChoice {
+        motor,
+        winding_counter_v,
+        led,
+    } = choices::load(&f)?;
     let b = &f.bridge;
     let switch = match (b.rds_on_ohm, b.switch_drop_v) {
         (Some(r), None) => SwitchDrop::OnResistance(r),
@@ -256,6 +260,7 @@ pub(super) fn from_file(f: File, fallback_name: &str) -> Result<Params, Scenario
         record_every_ticks: f.record_every_ticks,
         motor,
         winding_counter_v,
+        led,
         bridge,
         sense,
         timing,

@@ -37,6 +37,10 @@ pub struct Params {
     /// `Some(E)`: the load is a plain winding with counter-voltage `E`
     /// (`[winding]`), not a motor.
     pub winding_counter_v: Option<f64>,
+    /// `Some`: the load is an LED string (`[led]`); `motor` then holds the
+    /// R-L the design takes (its inductor, and its slope at
+    /// `led.design_current_a`).
+    pub led: Option<LedLoad>,
     /// The H-bridge.
     pub bridge: BridgeParams,
     /// The current sense chain.
@@ -124,6 +128,15 @@ pub struct ControllerParams {
     pub setpoint: SetpointParams,
     /// Protections.
     pub protection: ProtectionParams,
+}
+
+/// An LED string and where the design linearises it.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct LedLoad {
+    /// The string.
+    pub string: crate::plant::led::LedParams,
+    /// The current its slope is taken at for the design, A.
+    pub design_current_a: f64,
 }
 
 /// The fixed-point loop's bus ADC.

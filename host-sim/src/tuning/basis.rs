@@ -44,6 +44,9 @@ pub struct Basis {
     pub max_duty: f64,
     /// Largest setpoint magnitude, A.
     pub setpoint_max_a: f64,
+    /// The current a nonlinear load was linearised at to give `resistance_ohm`
+    /// (an LED string's slope there), A; `None` for a load that is an R-L.
+    pub linearised_at_a: Option<f64>,
 }
 
 /// The parts of a scenario a design reads.
@@ -63,6 +66,8 @@ pub struct Inputs<'a> {
     pub max_duty: f64,
     /// Largest setpoint magnitude, A.
     pub setpoint_max_a: f64,
+    /// Where `motor`'s R-L was linearised, for a nonlinear load, A.
+    pub linearised_at_a: Option<f64>,
 }
 
 fn missing(field: &str) -> ModelError {
@@ -121,6 +126,7 @@ impl Basis {
             supply_v: p.bridge.supply_v,
             max_duty: p.max_duty,
             setpoint_max_a: p.setpoint_max_a,
+            linearised_at_a: p.linearised_at_a,
         };
         basis.plant()?;
         basis.sampling()?;

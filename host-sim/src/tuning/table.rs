@@ -43,8 +43,12 @@ impl DesignReport {
         let _ = writeln!(s, "{}: PI design", self.name);
         let _ = writeln!(
             s,
-            "winding R = {} ohm, L = {} H; Ts = {} us, sample-to-update delay {:.2} periods, {}",
+            "winding R = {} ohm{}, L = {} H; Ts = {} us, sample-to-update delay {:.2} periods, {}",
             b.resistance_ohm,
+            match b.linearised_at_a {
+                Some(a) => format!(" (the load's slope dv/di at {a} A)"),
+                None => String::new(),
+            },
             b.inductance_h,
             b.period_s * 1e6,
             b.delay_periods,
