@@ -128,6 +128,7 @@ pub fn basis(params: &Params, overrides: &Overrides) -> Result<Basis, ScenarioEr
             max_duty: params.controller.max_duty,
             setpoint_max_a: params.setpoint_max_a(),
             linearised_at_a: params.led.map(|l| l.design_current_a),
+            design_gap_m: params.solenoid.map(|s| s.design_gap_m),
         },
         overrides.delay_periods,
     )

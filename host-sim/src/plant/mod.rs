@@ -9,6 +9,7 @@
 //!   ([`linear`]), so an RL step carries no integration error.
 //! * [`rl`]: `L di/dt = v - R i - E`, a winding with a constant counter-voltage.
 //! * [`led`]: a string of diodes (Shockley with series resistance) behind its inductor.
+//! * [`solenoid`]: a coil whose inductance follows its plunger's air gap, on a spring between stops.
 //! * [`bridge`]: sign-magnitude H-bridge with centre-aligned PWM, dead time,
 //!   switch and diode drops, slow or fast decay, a soft supply; averaged or
 //!   edge by edge.
@@ -29,4 +30,5 @@ pub mod noise;
 pub mod rl;
 pub mod saturation;
 pub mod sense_chain;
+pub mod solenoid;
 pub mod timing;

@@ -21,6 +21,7 @@ use crate::plant::load::Load;
 use crate::plant::motor::Motor;
 use crate::plant::rl::{RlLoad, RlParams};
 use crate::plant::sense_chain::SenseChain;
+use crate::plant::solenoid::Solenoid;
 use crate::plant::timing::Timing;
 use crate::sim::controller::{FixedFirmware, LoopUnderTest};
 use crate::sim::runner::{DriveChain, Event};
@@ -68,14 +69,18 @@ impl Params {
     }
 
     fn assemble(&self, gains: GainParams, default_weight: f64) -> Result<Scenario, ScenarioError> {
-        let load: Box<dyn Load> = match (self.winding_counter_v, self.led) {
-            (_, Some(led)) => Box::new(LedString::new(led.string)?),
-            (Some(counter_v), None) => Box::new(RlLoad::new(RlParams {
+        let load: Box<dyn Load> = if let Some(sd) = self.solenoid {
+            Box::new(Solenoid::new(sd.solenoid)?)
+        } else if let Some(led) = self.led {
+            Box::new(LedString::new(led.string)?)
+        } else if let Some(counter_v) = self.winding_counter_v {
+            Box::new(RlLoad::new(RlParams {
                 resistance_ohm: self.motor.resistance_ohm,
                 inductance_h: self.motor.inductance_h,
                 counter_v,
-            })?),
-            (None, None) => Box::new(Motor::new(self.motor)?),
+            })?)
+        } else {
+            Box::new(Motor::new(self.motor)?)
         };
         let bridge = Bridge::new(self.bridge)?;
         let sense = SenseChain::new(self.sense)?;

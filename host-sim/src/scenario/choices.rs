@@ -3,17 +3,19 @@
 
 use super::ScenarioError;
 use super::file::{ArithmeticName, BridgeSection, ControllerSection, File, TopologyName};
-use super::params::{FixedPointParams, LedLoad};
+use super::params::{FixedPointParams, LedLoad, SolenoidLoad};
 use crate::model_error::ModelError;
 use crate::plant::bridge::Topology;
 use crate::plant::led::{LedParams, LedString};
 use crate::plant::motor::MotorParams;
+use crate::plant::solenoid::{Solenoid, SolenoidParams};
 
 /// What the load of a scenario is, beside the R-L the design takes.
 pub(super) struct LoadChoice {
     pub motor: MotorParams,
     pub winding_counter_v: Option<f64>,
     pub led: Option<LedLoad>,
+    pub solenoid: Option<SolenoidLoad>,
 }
 
 /// The load: a `[motor]`, a `[winding]` (a held R-L with a counter-voltage)
@@ -21,20 +23,57 @@ pub(super) struct LoadChoice {
 /// held R-L: the winding's own R and L; the string's inductor and its slope
 /// `dv/di` at its rated current, `led.design_current_a`.
 pub(super) fn load(f: &File) -> Result<LoadChoice, ScenarioError> {
-    let given = [f.motor.is_some(), f.winding.is_some(), f.led.is_some()];
+    let given = [
+        f.motor.is_some(),
+        f.winding.is_some(),
+        f.led.is_some(),
+        f.solenoid.is_some(),
+    ];
     if given.iter().filter(|g| **g).count() > 1 {
         return Err(ModelError::new(
             "winding",
             "(given)",
-            "left out when [motor] or [led] is given: a scenario has one load",
+            "one of [motor], [winding], [led] and [solenoid]: a scenario has one load",
         )
         .into());
+    }
+    if let Some(sd) = &f.solenoid {
+        let params = SolenoidParams {
+            resistance_ohm: sd.resistance_ohm,
+            turns: sd.turns,
+            pole_area_m2: sd.pole_area_m2,
+            iron_path_m: sd.iron_path_m,
+            iron_relative_permeability: sd.iron_relative_permeability,
+            plunger_mass_kg: sd.plunger_mass_kg,
+            spring_n_per_m: sd.spring_n_per_m,
+            spring_free_gap_m: sd.spring_free_gap_m,
+            damping_n_s_per_m: sd.damping_n_s_per_m,
+            closed_gap_m: sd.closed_gap_m,
+            open_gap_m: sd.open_gap_m,
+        };
+        Solenoid::new(params)?;
+        let at = ModelError::within(
+            "solenoid.design_gap_m",
+            sd.design_gap_m,
+            sd.closed_gap_m,
+            sd.open_gap_m,
+        )?;
+        return Ok(LoadChoice {
+            motor: MotorParams::rl(params.resistance_ohm, params.inductance_h(at)),
+            winding_counter_v: None,
+            led: None,
+            solenoid: Some(SolenoidLoad {
+                solenoid: params,
+                design_gap_m: at,
+            }),
+        });
     }
     if let Some(m) = &f.motor {
         return Ok(LoadChoice {
             motor: super::convert::motor(m)?,
             winding_counter_v: None,
             led: None,
+            solenoid: None,
         });
     }
     if let Some(w) = &f.winding {
@@ -42,6 +81,7 @@ pub(super) fn load(f: &File) -> Result<LoadChoice, ScenarioError> {
             motor: MotorParams::rl(w.resistance_ohm, w.inductance_h),
             winding_counter_v: Some(w.counter_v),
             led: None,
+            solenoid: None,
         });
     }
     if let Some(l) = &f.led {
@@ -63,11 +103,12 @@ pub(super) fn load(f: &File) -> Result<LoadChoice, ScenarioError> {
                 string: led,
                 design_current_a: at,
             }),
+            solenoid: None,
         });
     }
     Err(super::convert::missing(
         "motor".into(),
-        "a [motor], a [winding] or an [led] section: the load".into(),
+        "a [motor], [winding], [led] or [solenoid] section: the load".into(),
     ))
 }
 

@@ -86,6 +86,7 @@ pub(super) fn from_file(f: File, fallback_name: &str) -> Result<Params, Scenario
         motor,
         winding_counter_v,
         led,
+        solenoid,
     } = choices::load(&f)?;
     let b = &f.bridge;
     let switch = match (b.rds_on_ohm, b.switch_drop_v) {
@@ -261,6 +262,7 @@ pub(super) fn from_file(f: File, fallback_name: &str) -> Result<Params, Scenario
         motor,
         winding_counter_v,
         led,
+        solenoid,
         bridge,
         sense,
         timing,

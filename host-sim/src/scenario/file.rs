@@ -5,6 +5,8 @@
 
 use serde::Deserialize;
 
+pub(super) use super::load_sections::{LedSection, SolenoidSection, WindingSection};
+
 use super::ScenarioError;
 
 /// Parses scenario text; a syntax error, or a field that is unknown, missing
@@ -101,6 +103,7 @@ pub(super) struct File {
     pub(super) motor: Option<MotorSection>,
     pub(super) winding: Option<WindingSection>,
     pub(super) led: Option<LedSection>,
+    pub(super) solenoid: Option<SolenoidSection>,
     pub(super) bridge: BridgeSection,
     pub(super) sense: SenseSection,
     pub(super) timing: TimingSection,
@@ -140,34 +143,6 @@ pub(super) struct VarySection {
     pub(super) normal_sigma_pct: Option<f64>,
     pub(super) normal_sigma: Option<f64>,
     pub(super) within: Option<[f64; 2]>,
-}
-
-#[derive(Debug, Deserialize)]
-#[serde(deny_unknown_fields)]
-pub(super) struct LedSection {
-    pub(super) count: u32,
-    pub(super) saturation_current_a: f64,
-    pub(super) ideality: f64,
-    #[serde(default)]
-    pub(super) series_resistance_ohm: f64,
-    #[serde(default = "junction_c")]
-    pub(super) junction_c: f64,
-    pub(super) inductance_h: f64,
-    /// The current the design linearises the string at (its slope there).
-    pub(super) design_current_a: f64,
-}
-
-fn junction_c() -> f64 {
-    25.0
-}
-
-#[derive(Debug, Deserialize)]
-#[serde(deny_unknown_fields)]
-pub(super) struct WindingSection {
-    pub(super) resistance_ohm: f64,
-    pub(super) inductance_h: f64,
-    #[serde(default)]
-    pub(super) counter_v: f64,
 }
 
 #[derive(Debug, Deserialize)]

@@ -20,6 +20,7 @@ pub mod build;
 mod choices;
 mod convert;
 mod file;
+mod load_sections;
 mod names;
 pub mod params;
 pub mod tolerances;

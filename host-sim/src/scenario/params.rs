@@ -41,6 +41,10 @@ pub struct Params {
     /// R-L the design takes (its inductor, and its slope at
     /// `led.design_current_a`).
     pub led: Option<LedLoad>,
+    /// `Some`: the load is a solenoid (`[solenoid]`); `motor` then holds the
+    /// R-L the design takes (the coil's R, its inductance at
+    /// `design_gap_m`).
+    pub solenoid: Option<SolenoidLoad>,
     /// The H-bridge.
     pub bridge: BridgeParams,
     /// The current sense chain.
@@ -128,6 +132,15 @@ pub struct ControllerParams {
     pub setpoint: SetpointParams,
     /// Protections.
     pub protection: ProtectionParams,
+}
+
+/// A solenoid and the gap the design takes it at.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct SolenoidLoad {
+    /// The solenoid.
+    pub solenoid: crate::plant::solenoid::SolenoidParams,
+    /// The air gap its inductance is taken at for the design, m.
+    pub design_gap_m: f64,
 }
 
 /// An LED string and where the design linearises it.

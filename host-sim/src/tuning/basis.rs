@@ -47,6 +47,8 @@ pub struct Basis {
     /// The current a nonlinear load was linearised at to give `resistance_ohm`
     /// (an LED string's slope there), A; `None` for a load that is an R-L.
     pub linearised_at_a: Option<f64>,
+    /// The air gap a solenoid's inductance was taken at, m; `None` otherwise.
+    pub design_gap_m: Option<f64>,
 }
 
 /// The parts of a scenario a design reads.
@@ -68,6 +70,8 @@ pub struct Inputs<'a> {
     pub setpoint_max_a: f64,
     /// Where `motor`'s R-L was linearised, for a nonlinear load, A.
     pub linearised_at_a: Option<f64>,
+    /// The air gap `motor`'s inductance was taken at, for a solenoid, m.
+    pub design_gap_m: Option<f64>,
 }
 
 fn missing(field: &str) -> ModelError {
@@ -127,6 +131,7 @@ impl Basis {
             max_duty: p.max_duty,
             setpoint_max_a: p.setpoint_max_a,
             linearised_at_a: p.linearised_at_a,
+            design_gap_m: p.design_gap_m,
         };
         basis.plant()?;
         basis.sampling()?;

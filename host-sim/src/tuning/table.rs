@@ -43,13 +43,17 @@ impl DesignReport {
         let _ = writeln!(s, "{}: PI design", self.name);
         let _ = writeln!(
             s,
-            "winding R = {} ohm{}, L = {} H; Ts = {} us, sample-to-update delay {:.2} periods, {}",
+            "winding R = {} ohm{}, L = {} H{}; Ts = {} us, sample-to-update delay {:.2} periods, {}",
             b.resistance_ohm,
             match b.linearised_at_a {
                 Some(a) => format!(" (the load's slope dv/di at {a} A)"),
                 None => String::new(),
             },
             b.inductance_h,
+            match b.design_gap_m {
+                Some(g) => format!(" (at an air gap of {} mm)", g * 1e3),
+                None => String::new(),
+            },
             b.period_s * 1e6,
             b.delay_periods,
             if b.filter_tau_s > 0.0 {
