@@ -117,7 +117,7 @@ fn malformed_scenarios_name_the_field_in_one_sentence() {
                 "{}\n[winding]\nresistance_ohm = 1.0\ninductance_h = 1e-3\n",
                 demo_with("", "")
             ),
-            "winding = (given) must be one of [motor], [winding], [led] and [solenoid]",
+            "winding = (given) must be one of [motor], [winding], [led], [solenoid] and [battery]",
         ),
         ("this is not toml".to_string(), "scenario line 1"),
     ];

@@ -9,6 +9,7 @@
 //!   ([`linear`]), so an RL step carries no integration error.
 //! * [`rl`]: `L di/dt = v - R i - E`, a winding with a constant counter-voltage.
 //! * [`led`]: a string of diodes (Shockley with series resistance) behind its inductor.
+//! * [`battery`]: an open-circuit voltage by the state of charge, a series resistance and one R-C pair, behind the charger's inductor.
 //! * [`solenoid`]: a coil whose inductance follows its plunger's air gap, on a spring between stops.
 //! * [`bridge`]: sign-magnitude H-bridge with centre-aligned PWM, dead time,
 //!   switch and diode drops, slow or fast decay, a soft supply; averaged or
@@ -20,6 +21,7 @@
 //! * [`timing`]: when the firmware samples, how long it computes, when the new
 //!   duty reaches the PWM.
 
+pub mod battery;
 pub mod bridge;
 pub mod faults;
 pub mod led;

@@ -14,6 +14,7 @@ use super::names::{Site, core};
 use super::params::{AntiWindupParams, EventAction, GainParams, OverloadCurve, Params};
 use super::{Scenario, ScenarioError};
 use crate::model_error::ModelError;
+use crate::plant::battery::Battery;
 use crate::plant::bridge::{Bridge, Topology};
 use crate::plant::faults::{FaultKind, Injectors};
 use crate::plant::led::LedString;
@@ -69,7 +70,9 @@ impl Params {
     }
 
     fn assemble(&self, gains: GainParams, default_weight: f64) -> Result<Scenario, ScenarioError> {
-        let load: Box<dyn Load> = if let Some(sd) = self.solenoid {
+        let load: Box<dyn Load> = if let Some(b) = &self.battery {
+            Box::new(Battery::new(b.clone())?)
+        } else if let Some(sd) = self.solenoid {
             Box::new(Solenoid::new(sd.solenoid)?)
         } else if let Some(led) = self.led {
             Box::new(LedString::new(led.string)?)

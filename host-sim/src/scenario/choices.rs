@@ -5,6 +5,7 @@ use super::ScenarioError;
 use super::file::{ArithmeticName, BridgeSection, ControllerSection, File, TopologyName};
 use super::params::{FixedPointParams, LedLoad, SolenoidLoad};
 use crate::model_error::ModelError;
+use crate::plant::battery::{Battery, BatteryParams};
 use crate::plant::bridge::Topology;
 use crate::plant::led::{LedParams, LedString};
 use crate::plant::motor::MotorParams;
@@ -16,6 +17,7 @@ pub(super) struct LoadChoice {
     pub winding_counter_v: Option<f64>,
     pub led: Option<LedLoad>,
     pub solenoid: Option<SolenoidLoad>,
+    pub battery: Option<BatteryParams>,
 }
 
 /// The load: a `[motor]`, a `[winding]` (a held R-L with a counter-voltage)
@@ -28,14 +30,34 @@ pub(super) fn load(f: &File) -> Result<LoadChoice, ScenarioError> {
         f.winding.is_some(),
         f.led.is_some(),
         f.solenoid.is_some(),
+        f.battery.is_some(),
     ];
     if given.iter().filter(|g| **g).count() > 1 {
         return Err(ModelError::new(
             "winding",
             "(given)",
-            "one of [motor], [winding], [led] and [solenoid]: a scenario has one load",
+            "one of [motor], [winding], [led], [solenoid] and [battery]: a scenario has one load",
         )
         .into());
+    }
+    if let Some(b) = &f.battery {
+        let params = BatteryParams {
+            ocv_table: b.ocv_table.clone(),
+            capacity_ah: b.capacity_ah,
+            series_resistance_ohm: b.series_resistance_ohm,
+            polarisation_ohm: b.polarisation_ohm,
+            polarisation_f: b.polarisation_f,
+            initial_soc: b.initial_soc,
+            inductance_h: b.inductance_h,
+        };
+        Battery::new(params.clone())?;
+        return Ok(LoadChoice {
+            motor: MotorParams::rl(params.series_resistance_ohm, params.inductance_h),
+            winding_counter_v: None,
+            led: None,
+            solenoid: None,
+            battery: Some(params),
+        });
     }
     if let Some(sd) = &f.solenoid {
         let params = SolenoidParams {
@@ -66,6 +88,7 @@ pub(super) fn load(f: &File) -> Result<LoadChoice, ScenarioError> {
                 solenoid: params,
                 design_gap_m: at,
             }),
+            battery: None,
         });
     }
     if let Some(m) = &f.motor {
@@ -74,6 +97,7 @@ pub(super) fn load(f: &File) -> Result<LoadChoice, ScenarioError> {
             winding_counter_v: None,
             led: None,
             solenoid: None,
+            battery: None,
         });
     }
     if let Some(w) = &f.winding {
@@ -82,6 +106,7 @@ pub(super) fn load(f: &File) -> Result<LoadChoice, ScenarioError> {
             winding_counter_v: Some(w.counter_v),
             led: None,
             solenoid: None,
+            battery: None,
         });
     }
     if let Some(l) = &f.led {
@@ -104,11 +129,12 @@ pub(super) fn load(f: &File) -> Result<LoadChoice, ScenarioError> {
                 design_current_a: at,
             }),
             solenoid: None,
+            battery: None,
         });
     }
     Err(super::convert::missing(
         "motor".into(),
-        "a [motor], [winding], [led] or [solenoid] section: the load".into(),
+        "a [motor], [winding], [led], [solenoid] or [battery] section: the load".into(),
     ))
 }
 

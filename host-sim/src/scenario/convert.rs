@@ -87,6 +87,7 @@ pub(super) fn from_file(f: File, fallback_name: &str) -> Result<Params, Scenario
         winding_counter_v,
         led,
         solenoid,
+        battery,
     } = choices::load(&f)?;
     let b = &f.bridge;
     let switch = match (b.rds_on_ohm, b.switch_drop_v) {
@@ -263,6 +264,7 @@ pub(super) fn from_file(f: File, fallback_name: &str) -> Result<Params, Scenario
         winding_counter_v,
         led,
         solenoid,
+        battery,
         bridge,
         sense,
         timing,

@@ -5,7 +5,7 @@
 
 use serde::Deserialize;
 
-pub(super) use super::load_sections::{LedSection, SolenoidSection, WindingSection};
+pub(super) use super::load_sections::{BatterySection, LedSection, SolenoidSection, WindingSection};
 
 use super::ScenarioError;
 
@@ -104,6 +104,7 @@ pub(super) struct File {
     pub(super) winding: Option<WindingSection>,
     pub(super) led: Option<LedSection>,
     pub(super) solenoid: Option<SolenoidSection>,
+    pub(super) battery: Option<BatterySection>,
     pub(super) bridge: BridgeSection,
     pub(super) sense: SenseSection,
     pub(super) timing: TimingSection,

@@ -55,3 +55,21 @@ pub(crate) struct WindingSection {
     #[serde(default)]
     pub(crate) counter_v: f64,
 }
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub(crate) struct BatterySection {
+    pub(crate) ocv_table: Vec<(f64, f64)>,
+    pub(crate) capacity_ah: f64,
+    pub(crate) series_resistance_ohm: f64,
+    #[serde(default)]
+    pub(crate) polarisation_ohm: f64,
+    #[serde(default = "one_farad")]
+    pub(crate) polarisation_f: f64,
+    pub(crate) initial_soc: f64,
+    pub(crate) inductance_h: f64,
+}
+
+fn one_farad() -> f64 {
+    1.0
+}

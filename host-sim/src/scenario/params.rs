@@ -45,6 +45,10 @@ pub struct Params {
     /// R-L the design takes (the coil's R, its inductance at
     /// `design_gap_m`).
     pub solenoid: Option<SolenoidLoad>,
+    /// `Some`: the load is a battery behind the charger's inductor
+    /// (`[battery]`); `motor` then holds the R-L the design takes (the
+    /// series resistance and the inductor).
+    pub battery: Option<crate::plant::battery::BatteryParams>,
     /// The H-bridge.
     pub bridge: BridgeParams,
     /// The current sense chain.
