@@ -12,7 +12,7 @@
 
 use crate::model_error::ModelError;
 
-use super::load::Load;
+use super::load::{Load, rl_time_to_zero_s};
 use super::motor::{MotorDrive, REFERENCE_C};
 
 /// The battery's parameters, SI units.
@@ -181,18 +181,14 @@ impl Load for Battery {
     }
 
     fn time_to_zero_s(&self, terminal_v: f64, within_s: f64) -> Option<f64> {
-        let i0 = self.current_a;
-        if i0 == 0.0 {
-            return Some(0.0);
-        }
         let p = &self.params;
-        let steady = (terminal_v - p.ocv_v(self.soc) - self.polarisation_v) / p.series_resistance_ohm;
-        let ratio = steady / (steady - i0);
-        if !(ratio > 0.0 && ratio < 1.0) {
-            return None;
-        }
-        let t = -p.inductance_h / p.series_resistance_ohm * ratio.ln();
-        (t <= within_s).then_some(t)
+        let steady = (terminal_v - self.open_circuit_v()) / p.series_resistance_ohm;
+        rl_time_to_zero_s(
+            self.current_a,
+            steady,
+            p.inductance_h / p.series_resistance_ohm,
+            within_s,
+        )
     }
 
     fn open_circuit_v(&self) -> f64 {

@@ -49,6 +49,22 @@ pub trait Load: fmt::Debug + Send + Sync {
     fn boxed(&self) -> Box<dyn Load>;
 }
 
+/// When a current `i0` heading exponentially for `steady_a` with time
+/// constant `tau_s` (an R-L behind a held voltage) reaches zero, seconds;
+/// `None` if it does not within `within_s`. The one solution of
+/// `i(t) = steady + (i0 - steady) exp(-t / tau) = 0` the loads share.
+pub fn rl_time_to_zero_s(i0: f64, steady_a: f64, tau_s: f64, within_s: f64) -> Option<f64> {
+    if i0 == 0.0 {
+        return Some(0.0);
+    }
+    let ratio = steady_a / (steady_a - i0);
+    if !(ratio > 0.0 && ratio < 1.0) {
+        return None;
+    }
+    let t = -tau_s * ratio.ln();
+    (t <= within_s).then_some(t)
+}
+
 impl Clone for Box<dyn Load> {
     fn clone(&self) -> Self {
         self.boxed()

@@ -300,10 +300,6 @@ impl Motor {
     /// terminal voltage held at `terminal_v`, with the speed taken as constant;
     /// `None` if it does not reach zero in `within_s`.
     pub fn time_to_zero_s(&self, terminal_v: f64, within_s: f64) -> Option<f64> {
-        let i0 = self.current_a;
-        if i0 == 0.0 {
-            return Some(0.0);
-        }
         let r = self.resistance_ohm;
         let emf = if self.params.locked_rotor {
             0.0
@@ -311,13 +307,7 @@ impl Motor {
             self.params.back_emf_v_s_per_rad * self.speed_rad_s
         };
         let steady = (terminal_v - emf) / r;
-        // i(t) = steady + (i0 - steady) exp(-t R / L) = 0
-        let ratio = steady / (steady - i0);
-        if !(ratio > 0.0 && ratio < 1.0) {
-            return None;
-        }
-        let t = -self.params.inductance_h / r * ratio.ln();
-        (t <= within_s).then_some(t)
+        super::load::rl_time_to_zero_s(self.current_a, steady, self.params.inductance_h / r, within_s)
     }
 
     /// Winding current, amperes.

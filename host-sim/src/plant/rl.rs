@@ -9,7 +9,7 @@
 
 use crate::model_error::ModelError;
 
-use super::load::Load;
+use super::load::{Load, rl_time_to_zero_s};
 use super::motor::{MotorDrive, REFERENCE_C};
 
 /// The winding's parameters, SI units.
@@ -71,19 +71,14 @@ impl Load for RlLoad {
     }
 
     fn time_to_zero_s(&self, terminal_v: f64, within_s: f64) -> Option<f64> {
-        let i0 = self.current_a;
-        if i0 == 0.0 {
-            return Some(0.0);
-        }
         let p = &self.params;
         let steady = (terminal_v - p.counter_v) / p.resistance_ohm;
-        // i(t) = steady + (i0 - steady) exp(-t R / L) = 0
-        let ratio = steady / (steady - i0);
-        if !(ratio > 0.0 && ratio < 1.0) {
-            return None;
-        }
-        let t = -p.inductance_h / p.resistance_ohm * ratio.ln();
-        (t <= within_s).then_some(t)
+        rl_time_to_zero_s(
+            self.current_a,
+            steady,
+            p.inductance_h / p.resistance_ohm,
+            within_s,
+        )
     }
 
     fn open_circuit_v(&self) -> f64 {
