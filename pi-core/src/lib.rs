@@ -85,6 +85,7 @@ extern crate std;
 
 #[cfg(feature = "link")]
 pub mod capture;
+pub mod charge;
 pub mod current_loop;
 pub mod design;
 pub mod error;

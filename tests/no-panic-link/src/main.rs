@@ -20,12 +20,13 @@ use core::panic::PanicInfo;
 
 use embedded_hal::digital::{ErrorKind as PinErrorKind, ErrorType as PinErrorType, OutputPin};
 use embedded_hal::pwm::{ErrorKind as PwmErrorKind, ErrorType as PwmErrorType, SetDutyCycle};
+use pi_core::capture::Capture;
+use pi_core::charge::{ChargeConfig, ChargeLimit};
+use pi_core::current_loop::fixed::{FixedCommand, FixedLoop, FixedLoopConfig, FixedTickInput};
 use pi_core::design::{RlPlant, Sampling, Spec, analysis::OpenLoop, discrete};
 use pi_core::excitation::{Excitation, Waveform};
-use pi_core::capture::Capture;
 use pi_core::heapless::spsc::Queue;
 use pi_core::link::{Link, LoopBoard};
-use pi_core::current_loop::fixed::{FixedCommand, FixedLoop, FixedLoopConfig, FixedTickInput};
 use pi_core::pi::fixed::{FixedPi, FixedRetune, FixedScale};
 use pi_core::prelude::*;
 use pi_core::{Observation, OffsetCalibration, OffsetProgress, SetpointShaper, Supervisor};
@@ -298,6 +299,28 @@ fn fixed_loop() {
     }
 }
 
+/// A charger's outer voltage limit, as a main loop runs it.
+fn charge_limit() {
+    let Ok(gains) = PiGains::from_kp_ti(black_box(2.0), black_box(5e-3)) else {
+        return;
+    };
+    let Ok(config) = ChargeConfig::new(
+        black_box(1.0),
+        black_box(4.2),
+        black_box(0.05),
+        black_box(3600.0),
+        gains,
+        black_box(1e-3),
+    ) else {
+        return;
+    };
+    let mut c = ChargeLimit::new(config);
+    for _ in 0..black_box(100u32) {
+        black_box(c.update(black_box(3.9)));
+        black_box(c.phase());
+    }
+}
+
 /// The other pieces on their own, as a firmware that assembles its own loop
 /// would use them: two-point calibration, the supervisor, the setpoint shaper,
 /// the duty mapping.
@@ -345,6 +368,7 @@ pub extern "C" fn _start() -> ! {
     };
     bare_pi();
     fixed_loop();
+    charge_limit();
     identify_winding();
     parts_alone();
     let mut queue: Queue<Command, 8> = Queue::new();
