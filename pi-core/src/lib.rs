@@ -1,7 +1,8 @@
 //! # pi-core: a windup-safe PI current loop for microcontrollers
 //!
 //! `pi-core` closes a current loop around a resistive-inductive load (brushed DC
-//! motor, solenoid, voice coil, LED string, charger) driven by an H-bridge. It is
+//! motor, solenoid, voice coil, LED string, charger) driven by an H-bridge or a
+//! one-direction switch ([`DutyMapping::one_direction`]). It is
 //! `no_std`, allocates nothing, has no `unsafe`, and nothing in the control path
 //! panics or blocks.
 //!
@@ -33,7 +34,9 @@
 //! * [`pi`]: the bare PI; usable alone when you already have amperes.
 //! * [`output`]: volts to duty by the measured bus, duty limits.
 //! * [`current_loop`]: the pieces in tick order and the disabled / running /
-//!   faulted state machine.
+//!   faulted state machine; [`current_loop::fixed`] the same loop on integers
+//!   for cores without an FPU.
+//! * [`charge`]: a charger's outer voltage limit that feeds the loop's setpoint.
 //! * [`handoff`]: commands from the main loop to the interrupt through a lock-free
 //!   queue, with a control-interrupt skeleton.
 //! * [`hal`]: embedded-hal 1.0 adapters for sign-magnitude and two-PWM bridges.
