@@ -5,7 +5,7 @@ use std::io::Write;
 use std::path::PathBuf;
 
 use crate::cli::progress::Progress;
-use crate::plot::{StepPlot, long_run_svg, step_response_svg};
+use crate::plot::{LoadPlot, StepPlot, load_run_svg, long_run_svg, step_response_svg};
 use crate::prepare;
 use crate::results::html::{Section, page};
 use crate::results::plan::Plan;
@@ -95,7 +95,7 @@ pub fn run(args: &SimulateArgs) -> i32 {
     let every = scenario.record_every_ticks;
     let kept = (plan.rows / PLOT_POINTS).ceil().max(1.0) as u64;
     let result = {
-        let mut rows = CsvRows::new(&mut sink);
+        let mut rows = CsvRows::new(&mut sink, scenario.chain.load.readouts());
         let mut tick = 0u64;
         let mut failed: Option<std::io::Error> = None;
         let run = report::run_streaming(
@@ -213,10 +213,26 @@ fn write_files(
         super::write_with(&path, |f| f.write_all(doc.as_bytes()))?;
         written.push(path.display().to_string());
     }
+    // A load that shows more than its current (a plunger, a cell) gets its own picture.
+    let mut load_doc = None;
+    if !trace.readouts.is_empty() {
+        let path = dir.join(format!("{stem}-load.svg"));
+        let plot = LoadPlot {
+            title: format!("{}: the load over the run", rep.name),
+            ..LoadPlot::default()
+        };
+        let doc = load_run_svg(trace, &plot);
+        super::write_with(&path, |f| f.write_all(doc.as_bytes()))?;
+        written.push(path.display().to_string());
+        load_doc = Some(doc);
+    }
     if args.report {
         let mut sections = rep.sections();
         sections.push(Section::Heading("Pictures".into()));
         sections.push(Section::Picture("step response".into(), doc.clone()));
+        if let Some(d) = &load_doc {
+            sections.push(Section::Picture("the load over the run".into(), d.clone()));
+        }
         for extra in &written {
             if extra.ends_with("-thermal.svg")
                 && let Ok(svg) = std::fs::read_to_string(extra)

@@ -12,7 +12,7 @@
 
 use crate::model_error::ModelError;
 
-use super::load::{Load, rl_time_to_zero_s};
+use super::load::{Load, READOUTS, Readout, rl_time_to_zero_s};
 use super::motor::{MotorDrive, REFERENCE_C};
 
 /// The battery's parameters, SI units.
@@ -201,6 +201,29 @@ impl Load for Battery {
 
     fn resistance_ohm(&self) -> f64 {
         self.params.series_resistance_ohm
+    }
+
+    fn readouts(&self) -> &'static [Readout] {
+        &[
+            Readout {
+                column: "soc_pct",
+                name: "state of charge",
+                unit: "%",
+            },
+            Readout {
+                column: "cell_v",
+                name: "cell terminal voltage",
+                unit: "V",
+            },
+        ]
+    }
+
+    fn readings(&self) -> [f64; READOUTS] {
+        [100.0 * self.soc, self.terminal_v()]
+    }
+
+    fn sensed_v(&self) -> Option<f64> {
+        Some(self.terminal_v())
     }
 
     fn boxed(&self) -> Box<dyn Load> {

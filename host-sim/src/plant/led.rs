@@ -18,7 +18,7 @@
 
 use crate::model_error::ModelError;
 
-use super::load::Load;
+use super::load::{Load, READOUTS, Readout};
 use super::motor::{MotorDrive, REFERENCE_C};
 
 /// Boltzmann's constant, J/K (exact in the SI since 2019).
@@ -233,6 +233,18 @@ impl Load for LedString {
 
     fn resistance_ohm(&self) -> f64 {
         self.params.slope_at(self.current_a)
+    }
+
+    fn readouts(&self) -> &'static [Readout] {
+        &[Readout {
+            column: "string_v",
+            name: "string voltage",
+            unit: "V",
+        }]
+    }
+
+    fn readings(&self) -> [f64; READOUTS] {
+        [self.params.voltage_at(self.current_a), f64::NAN]
     }
 
     fn boxed(&self) -> Box<dyn Load> {

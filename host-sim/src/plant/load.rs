@@ -10,6 +10,22 @@ use std::fmt;
 
 use super::motor::{Motor, MotorDrive};
 
+/// How many quantities a load can show besides its current.
+pub const READOUTS: usize = 2;
+
+/// A quantity a load shows besides its current (a plunger's travel, a
+/// cell's state of charge): its trace column (the unit in its name), its
+/// name in words and its unit, for the CSV and the plots.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct Readout {
+    /// The CSV column, e.g. `travel_mm`.
+    pub column: &'static str,
+    /// In words, e.g. `plunger travel`.
+    pub name: &'static str,
+    /// The unit, e.g. `mm`.
+    pub unit: &'static str,
+}
+
 /// A load the runner steps.
 pub trait Load: fmt::Debug + Send + Sync {
     /// Advances `dt_s` seconds with the drive held; returns the new current,
@@ -36,6 +52,22 @@ pub trait Load: fmt::Debug + Send + Sync {
     /// Whether its copper heats (a thermal model is on).
     fn heats(&self) -> bool {
         false
+    }
+    /// What the load shows besides its current and speed (at most
+    /// [`READOUTS`]); none by default.
+    fn readouts(&self) -> &'static [Readout] {
+        &[]
+    }
+    /// The present values of [`Load::readouts`], in their order and units
+    /// (NaN past them).
+    fn readings(&self) -> [f64; READOUTS] {
+        [f64::NAN; READOUTS]
+    }
+    /// The voltage across the load itself that a charger's outer limit
+    /// reads (a cell's terminals, behind the charger's inductor), volts;
+    /// `None` for a load a charger does not charge.
+    fn sensed_v(&self) -> Option<f64> {
+        None
     }
     /// The motor, when the load is one.
     fn motor(&self) -> Option<&Motor> {

@@ -22,7 +22,7 @@
 
 use crate::model_error::ModelError;
 
-use super::load::Load;
+use super::load::{Load, READOUTS, Readout};
 use super::motor::{MotorDrive, REFERENCE_C};
 
 /// The magnetic constant, H/m (CODATA 2018).
@@ -329,6 +329,29 @@ impl Load for Solenoid {
 
     fn resistance_ohm(&self) -> f64 {
         self.params.resistance_ohm
+    }
+
+    fn readouts(&self) -> &'static [Readout] {
+        &[
+            Readout {
+                column: "travel_mm",
+                name: "plunger travel from open",
+                unit: "mm",
+            },
+            Readout {
+                column: "inductance_mh",
+                name: "coil inductance",
+                unit: "mH",
+            },
+        ]
+    }
+
+    fn readings(&self) -> [f64; READOUTS] {
+        let p = &self.params;
+        [
+            1e3 * (p.open_gap_m - self.gap_m),
+            1e3 * p.inductance_h(self.gap_m),
+        ]
     }
 
     fn boxed(&self) -> Box<dyn Load> {

@@ -151,6 +151,7 @@ mod tests {
             fault_bits: 0,
             state: 1,
             i2t_level: 0.0,
+            load: [f64::NAN; crate::plant::load::READOUTS],
         }
     }
 

@@ -94,6 +94,7 @@ impl Runner {
     /// A runner at `t = 0` with the bridge off. Events are sorted by time.
     pub fn new(chain: DriveChain, timing: Timing, mut events: Vec<Event>) -> Self {
         events.sort_by(|a, b| a.at_s.total_cmp(&b.at_s));
+        let chain_readouts = chain.load.readouts();
         Self {
             chain,
             timing,
@@ -108,7 +109,10 @@ impl Runner {
             ticks: 0,
             charge_a_s: 0.0,
             charge_time_s: 0.0,
-            trace: Trace::default(),
+            trace: Trace {
+                readouts: chain_readouts,
+                ..Trace::default()
+            },
         }
     }
 
@@ -446,6 +450,7 @@ impl Runner {
             fault_bits: view.fault_bits,
             state: view.state,
             i2t_level: view.i2t_level,
+            load: self.chain.load.readings(),
         };
         if keep {
             self.trace.points.push(point);

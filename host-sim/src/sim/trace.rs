@@ -3,6 +3,8 @@
 
 use std::io::{self, Write};
 
+use crate::plant::load::{READOUTS, Readout};
+
 /// One control tick.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct TracePoint {
@@ -39,6 +41,9 @@ pub struct TracePoint {
     pub state: u8,
     /// The I^2t model's heat as a fraction of its trip level (0: off).
     pub i2t_level: f64,
+    /// What the load shows besides its current, in the order and units of
+    /// [`Trace::readouts`] (NaN past them).
+    pub load: [f64; READOUTS],
 }
 
 /// The current at a PWM edge (switching mode only, when asked for).
@@ -70,9 +75,13 @@ pub struct Trace {
     pub edges: Vec<EdgePoint>,
     /// Refused commands and other notes.
     pub log: Vec<LogEntry>,
+    /// What [`TracePoint::load`] holds: the load's readouts, each a CSV
+    /// column after [`CSV_HEADER`]'s.
+    pub readouts: &'static [Readout],
 }
 
-/// The CSV header of [`Trace::write_csv`].
+/// The CSV header of [`Trace::write_csv`], before the load's readouts (a
+/// motor has none; a solenoid adds `travel_mm,inductance_mh`).
 pub const CSV_HEADER: &str = "t_s,request_a,setpoint_a,current_a,measured_a,counts,commanded_v,duty,enabled,speed_rad_s,bus_v,supply_a,winding_c,fault_bits,state,i2t_level";
 
 /// Significant digits of the time column (a 150 s run at 50 us keeps every tick apart).
@@ -263,20 +272,27 @@ pub fn put_int(buf: &mut Vec<u8>, v: i64) {
 pub struct CsvRows<'a> {
     out: &'a mut dyn Write,
     buf: Vec<u8>,
+    readouts: usize,
 }
 
 /// The buffer size of [`CsvRows`], bytes.
 const CSV_BUFFER: usize = 1 << 17;
-/// The longest row: 12 reals, 4 integers, separators.
-const ROW_MAX: usize = 17 * REAL_MAX;
+/// The longest row: 12 reals, 4 integers, the readouts, separators.
+const ROW_MAX: usize = (17 + READOUTS) * REAL_MAX;
 
 impl<'a> CsvRows<'a> {
-    /// Starts the file: writes the header.
-    pub fn new(out: &'a mut dyn Write) -> io::Result<Self> {
-        writeln!(out, "{CSV_HEADER}")?;
+    /// Starts the file: writes the header, [`CSV_HEADER`] and a column for
+    /// each of the load's `readouts`.
+    pub fn new(out: &'a mut dyn Write, readouts: &[Readout]) -> io::Result<Self> {
+        write!(out, "{CSV_HEADER}")?;
+        for r in readouts.iter().take(READOUTS) {
+            write!(out, ",{}", r.column)?;
+        }
+        writeln!(out)?;
         Ok(Self {
             out,
             buf: Vec::with_capacity(CSV_BUFFER),
+            readouts: readouts.len().min(READOUTS),
         })
     }
 
@@ -314,6 +330,10 @@ impl<'a> CsvRows<'a> {
         n = int_into(&mut row, n, p.state as u64);
         n = sep(n, &mut row);
         n = real_into(&mut row, n, p.i2t_level, VALUE_DIGITS);
+        for &v in &p.load[..self.readouts] {
+            n = sep(n, &mut row);
+            n = real_into(&mut row, n, v, VALUE_DIGITS);
+        }
         row[n] = b'\n';
         self.buf.extend_from_slice(&row[..n + 1]);
         Ok(())
@@ -330,7 +350,7 @@ impl<'a> CsvRows<'a> {
 impl Trace {
     /// Writes the kept points as CSV (see [`CsvRows`]).
     pub fn write_csv(&self, out: &mut dyn Write) -> io::Result<()> {
-        let mut rows = CsvRows::new(out)?;
+        let mut rows = CsvRows::new(out, self.readouts)?;
         for p in &self.points {
             rows.row(p)?;
         }

@@ -261,6 +261,7 @@ fn pair_steps(time_s: &[f64], current_a: &[f64], setpoint_a: &[f64], sim: &[Trac
             fault_bits: 0,
             state: 1,
             i2t_level: 0.0,
+            load: [f64::NAN; crate::plant::load::READOUTS],
         })
         .collect();
     let ours = metrics::steps(&points);
