@@ -6,7 +6,9 @@
 use std::collections::BTreeSet;
 
 use host_sim::plot::svg::{overlaps, text_width};
-use host_sim::plot::{StepPlot, frequency_response_svg, long_run_svg, root_locus_svg, step_response_svg};
+use host_sim::plot::{
+    LoadPlot, StepPlot, frequency_response_svg, load_run_svg, long_run_svg, root_locus_svg, step_response_svg,
+};
 use host_sim::prepare::{self, Overrides};
 use host_sim::results::report;
 use host_sim::scenario::Params;
@@ -122,6 +124,36 @@ fn the_long_run_picture_is_consistent_and_marks_the_trip() {
     let svg = long_run_svg("jam", &trace, Some((&what, t)));
     check("long run", &svg);
     assert!(svg.contains("first fault") && svg.contains("trip level"));
+}
+
+#[test]
+fn the_load_pictures_are_consistent_and_mark_the_charge() {
+    for (file, panels) in [
+        ("battery_charge.toml", 3),
+        ("solenoid_stroke.toml", 3),
+        ("led_string_dimming.toml", 2),
+    ] {
+        let path = std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
+            .join("../host-sim/scenarios")
+            .join(file);
+        let s = host_sim::Scenario::load(&path).unwrap();
+        let (trace, rep) = report::run(&s, None, &mut |_| {}).unwrap();
+        assert_eq!(trace.readouts.len() + 1, panels, "{file}");
+        let svg = load_run_svg(&trace, &LoadPlot::of(&rep, &trace));
+        check(file, &svg);
+        for r in trace.readouts {
+            assert!(
+                svg.contains(&format!("{} ({})", r.name, r.unit)),
+                "{file}: {}",
+                r.name
+            );
+        }
+        if rep.charge.is_some() {
+            for words in ["constant voltage", "charge ended", "charge voltage 4.200 V"] {
+                assert!(svg.contains(words), "{file}: {words}");
+            }
+        }
+    }
 }
 
 #[test]

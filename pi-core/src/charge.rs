@@ -10,7 +10,10 @@
 //! error, its output limited to `0 ..= current_a`, with the same
 //! back-calculation anti-windup: while the voltage is below its set value
 //! the PI sits at the current limit (constant current) without winding up,
-//! and takes over the moment the voltage arrives (constant voltage).
+//! and takes over the moment the voltage arrives (constant voltage). A
+//! charge that starts below the set voltage asks the full current from its
+//! first update (the integral preloaded there); one that starts at or above
+//! it starts from 0 A in constant voltage.
 //!
 //! Units: the PI's gains here are amperes per volt (`PiGains`' field names
 //! are the current loop's, V/A).
@@ -76,6 +79,16 @@ impl ChargeConfig {
     pub fn voltage_v(&self) -> f32 {
         self.voltage_v
     }
+
+    /// The current that ends the constant-voltage phase, A.
+    pub fn taper_a(&self) -> f32 {
+        self.taper_a
+    }
+
+    /// The longest a charge may last, s.
+    pub fn time_limit_s(&self) -> f32 {
+        self.time_limit_s
+    }
 }
 
 /// Why a charge ended.
@@ -132,6 +145,14 @@ impl ChargeLimit {
         }
         if terminal_v.is_nan() || terminal_v.is_infinite() {
             return self.end(ChargeEnd::BadReading);
+        }
+        if self.elapsed_s == 0.0 && terminal_v < self.config.voltage_v {
+            // A cell below the set voltage starts at the constant current
+            // (the current loop's setpoint slew softens the step), not on a
+            // ramp of the integral; one at or above it starts from 0 A.
+            let _ = self
+                .pi
+                .track(self.config.current_a, self.config.voltage_v, terminal_v);
         }
         self.elapsed_s += self.config.pi.period_s();
         if self.elapsed_s >= self.config.time_limit_s {

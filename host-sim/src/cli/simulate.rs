@@ -217,11 +217,7 @@ fn write_files(
     let mut load_doc = None;
     if !trace.readouts.is_empty() {
         let path = dir.join(format!("{stem}-load.svg"));
-        let plot = LoadPlot {
-            title: format!("{}: the load over the run", rep.name),
-            ..LoadPlot::default()
-        };
-        let doc = load_run_svg(trace, &plot);
+        let doc = load_run_svg(trace, &LoadPlot::of(rep, trace));
         super::write_with(&path, |f| f.write_all(doc.as_bytes()))?;
         written.push(path.display().to_string());
         load_doc = Some(doc);

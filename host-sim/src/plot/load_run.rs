@@ -7,6 +7,7 @@
 //! panels with their words.
 
 use crate::plot::svg::{Axis, Canvas, format_tick, padded, trace_series};
+use crate::results::report::Report;
 use crate::sim::trace::{Trace, TracePoint};
 
 // Colours chosen for this project: current dark blue, setpoint teal, the
@@ -37,6 +38,33 @@ pub struct LoadPlot {
     pub levels: Vec<Level>,
     /// Moments: time, s, and words.
     pub moments: Vec<(f64, String)>,
+}
+
+impl LoadPlot {
+    /// What the load picture needs from a run's report and trace: the
+    /// title, and a charge's set voltage and moments when there was one.
+    pub fn of(report: &Report, trace: &Trace) -> Self {
+        let mut plot = Self {
+            title: format!("{}: the load over the run", report.name),
+            ..Self::default()
+        };
+        if let Some(c) = &report.charge {
+            if let Some(k) = trace.readouts.iter().position(|r| r.column == "cell_v") {
+                plot.levels.push(Level {
+                    readout: k,
+                    value: c.voltage_v,
+                    label: format!("charge voltage {:.3} V", c.voltage_v),
+                });
+            }
+            if let Some(t) = c.constant_voltage_from_s {
+                plot.moments.push((t, "constant voltage".into()));
+            }
+            if let Some((t, _)) = &c.ended {
+                plot.moments.push((*t, "charge ended".into()));
+            }
+        }
+        plot
+    }
 }
 
 const TOP: f64 = 60.0;

@@ -74,8 +74,11 @@ pub struct Report {
     pub peak_current_a: f64,
     /// Largest duty magnitude.
     pub peak_duty: f64,
-    /// Highest winding temperature, C.
-    pub max_winding_c: f64,
+    /// Highest winding temperature, C (`None`: the load has no thermal
+    /// model, its copper stays at its reference temperature).
+    pub max_winding_c: Option<f64>,
+    /// What a charger's voltage limit did, when the scenario ran one.
+    pub charge: Option<ChargeReport>,
     /// Each protection of the firmware's loop: on with its setting, or off.
     pub protections: Vec<ProtectionLine>,
     /// How the gains were designed, when the scenario left them out, with the
@@ -178,9 +181,68 @@ pub fn summarise(
         log: trace.log.iter().map(|e| (e.t_s, e.text.clone())).collect(),
         peak_current_a: summary.peak_current.0,
         peak_duty: summary.peak_duty,
-        max_winding_c: summary.max_winding_c,
+        max_winding_c: scenario.chain.load.heats().then_some(summary.max_winding_c),
+        charge: trace.charge.map(|c| ChargeReport::of(&c, trace)),
         protections: protections(&scenario.loop_config, scenario.chain.speed_feedback),
         designed: designed.cloned(),
+    }
+}
+
+/// What a charger's voltage limit did over the run.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct ChargeReport {
+    /// The constant current, A.
+    pub current_a: f64,
+    /// The constant voltage, V.
+    pub voltage_v: f64,
+    /// The current that ends the charge, A.
+    pub taper_a: f64,
+    /// When the voltage limit took over (constant voltage), s.
+    pub constant_voltage_from_s: Option<f64>,
+    /// When the charge ended, s, and why in words.
+    pub ended: Option<(f64, String)>,
+    /// The highest terminal voltage the limit read, V.
+    pub peak_v: f64,
+    /// The state of charge at the end of the run, % (from the load's
+    /// `soc_pct` readout).
+    pub final_soc_pct: Option<f64>,
+}
+
+impl ChargeReport {
+    fn of(c: &crate::sim::charger::ChargeRecord, trace: &Trace) -> Self {
+        let soc = trace.readouts.iter().position(|r| r.column == "soc_pct");
+        Self {
+            current_a: c.current_a,
+            voltage_v: c.voltage_v,
+            taper_a: c.taper_a,
+            constant_voltage_from_s: c.constant_voltage_from_s,
+            ended: c
+                .ended
+                .map(|(t, why)| (t, crate::sim::charger::describe_end(why).to_string())),
+            peak_v: c.peak_v,
+            final_soc_pct: soc.and_then(|k| trace.points.last().map(|p| p.load[k])),
+        }
+    }
+
+    fn lines(&self) -> String {
+        let mut s = format!(
+            "charge: constant current {:.3} A up to {:.3} V, ",
+            self.current_a, self.voltage_v
+        );
+        match self.constant_voltage_from_s {
+            Some(t) => s.push_str(&format!("constant voltage from {t:.3} s")),
+            None => s.push_str("the voltage limit never took over"),
+        }
+        match &self.ended {
+            Some((t, why)) => s.push_str(&format!("; ended at {t:.3} s: {why}")),
+            None => s.push_str("; still charging at the end of the run"),
+        }
+        s.push_str(&format!("\n  terminal voltage up to {:.4} V", self.peak_v));
+        if let Some(soc) = self.final_soc_pct {
+            s.push_str(&format!(", state of charge at the end {soc:.2} %"));
+        }
+        s.push('\n');
+        s
     }
 }
 
@@ -328,11 +390,22 @@ impl Report {
                 );
             }
         }
-        let _ = writeln!(
+        let _ = write!(
             s,
-            "\npeak current {:.3} A, peak duty {:.3}, winding up to {:.2} C",
-            self.peak_current_a, self.peak_duty, self.max_winding_c
+            "\npeak current {:.3} A, peak duty {:.3}",
+            self.peak_current_a, self.peak_duty
         );
+        match self.max_winding_c {
+            Some(c) => {
+                let _ = writeln!(s, ", winding up to {c:.2} C");
+            }
+            None => {
+                let _ = writeln!(s);
+            }
+        }
+        if let Some(c) = &self.charge {
+            s.push_str(&c.lines());
+        }
         let _ = writeln!(s, "protections");
         for p in &self.protections {
             let _ = writeln!(

@@ -8,7 +8,11 @@
 //! setpoint limits let it through (a request beyond them is marked clamped).
 //! A step is **interrupted**, and not scored, when during its window a fault
 //! latches, the bus leaves its nominal level (an injected dip or surge), the
-//! gains are retuned, or the run ends before it settles; the report says which.
+//! gains are retuned, or the run ends before it settles; the report says
+//! which. A charger's voltage limit taking over the setpoint (constant
+//! voltage) ends the open step there (interrupted if it had not settled);
+//! while the limit sets the current its small changes open no steps: the
+//! request follows the cell there, not a spec.
 
 use std::collections::VecDeque;
 
@@ -35,6 +39,8 @@ pub enum Interruption {
     BusEvent,
     /// The gains were retuned during the window.
     Retune,
+    /// A charger's voltage limit took over the setpoint (constant voltage).
+    ChargeVoltage,
     /// The run ended before the step settled.
     EndOfRun,
 }
@@ -46,6 +52,7 @@ impl Interruption {
             Interruption::Fault => "a fault latched",
             Interruption::BusEvent => "the bus left its nominal level",
             Interruption::Retune => "the gains were retuned",
+            Interruption::ChargeVoltage => "the charger's voltage limit took over the setpoint",
             Interruption::EndOfRun => "the run ended before it settled",
         }
     }
@@ -141,9 +148,12 @@ impl Summary {
             self.first_fault = Some((p.t_s, p.fault_bits));
         }
         self.sensor_fault_injected |= note.sensor_fault;
+        if note.charge_limited {
+            self.close(Some(Interruption::ChargeVoltage));
+        }
         let last = *self.last_request.get_or_insert(p.request_a);
-        if (p.request_a - last).abs() >= MIN_STEP_A {
-            self.close(false);
+        if (p.request_a - last).abs() >= MIN_STEP_A && !note.charge_limited {
+            self.close(None);
             let (lo, hi) = self.limits;
             let target = |r: f64| r.clamp(lo, hi);
             self.window = Some(Window {
@@ -195,10 +205,11 @@ impl Summary {
 
     /// Ends the run: the open step, if any, is measured.
     pub fn finish(&mut self) {
-        self.close(true);
+        self.close(Some(Interruption::EndOfRun));
     }
 
-    fn close(&mut self, end_of_run: bool) {
+    /// Measures the open step; `unsettled` is why, if it has not settled.
+    fn close(&mut self, unsettled: Option<Interruption>) {
         let Some(w) = self.window.take() else { return };
         if (w.to_a - w.from_a).abs() < MIN_STEP_A {
             return;
@@ -207,8 +218,8 @@ impl Summary {
         let tail_n = (w.ticks / 10).clamp(1, MAX_TAIL_TICKS).min(w.tail.len());
         let tail_mean = w.tail.iter().rev().take(tail_n).sum::<f64>() / tail_n as f64;
         let mut interrupted = w.interrupted;
-        if interrupted.is_none() && end_of_run && m.settling_time_s.is_none() {
-            interrupted = Some(Interruption::EndOfRun);
+        if interrupted.is_none() && m.settling_time_s.is_none() {
+            interrupted = unsettled;
         }
         let dy = w.to_a - w.from_a;
         self.steps.push(StepMetrics {

@@ -190,6 +190,17 @@ impl Params {
             loop_config,
             fixed_point,
             events,
+            charge: self
+                .charge
+                .map(|c| {
+                    c.build(
+                        self.timing.control_period_s,
+                        self.duration_s,
+                        self.battery.is_some(),
+                        self.controller.setpoint.max_a,
+                    )
+                })
+                .transpose()?,
             spec: self.spec,
             expect: self.expect,
             overcurrent_a: self.controller.protection.overcurrent_a,
@@ -384,7 +395,8 @@ impl Scenario {
         Ok((
             firmware,
             crate::sim::runner::Runner::new(self.chain.clone(), self.timing.clone(), self.events.clone())
-                .record_every(self.record_every_ticks),
+                .record_every(self.record_every_ticks)
+                .with_charge(self.charge),
         ))
     }
 

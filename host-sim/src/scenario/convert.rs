@@ -178,6 +178,14 @@ pub(super) fn from_file(f: File, fallback_name: &str) -> Result<Params, Scenario
             }
         };
         let action = match e.action {
+            ActionName::SetCurrent if f.charge.is_some() => {
+                return Err(ModelError::new(
+                    field("action"),
+                    "set_current",
+                    "left out when [charge] is given (the charger's limit sets the current from charge.start_s)",
+                )
+                .into());
+            }
             ActionName::SetCurrent => {
                 unused("kp_v_per_a", e.kp_v_per_a)?;
                 unused("ti_s", e.ti_s)?;
@@ -265,6 +273,7 @@ pub(super) fn from_file(f: File, fallback_name: &str) -> Result<Params, Scenario
         led,
         solenoid,
         battery,
+        charge: f.charge.as_ref().map(super::charge::ChargeParams::from),
         bridge,
         sense,
         timing,

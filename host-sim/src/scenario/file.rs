@@ -105,6 +105,8 @@ pub(super) struct File {
     pub(super) led: Option<LedSection>,
     pub(super) solenoid: Option<SolenoidSection>,
     pub(super) battery: Option<BatterySection>,
+    /// A charger's outer voltage limit (a battery only).
+    pub(super) charge: Option<super::charge::ChargeSection>,
     pub(super) bridge: BridgeSection,
     pub(super) sense: SenseSection,
     pub(super) timing: TimingSection,

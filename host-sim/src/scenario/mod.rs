@@ -17,6 +17,7 @@
 //! This module never imports `tuning/`; [`crate::prepare`] joins the two.
 
 pub mod build;
+pub mod charge;
 mod choices;
 mod convert;
 mod file;
@@ -102,6 +103,8 @@ pub struct Scenario {
     pub fixed_point: Option<(pi_core::current_loop::fixed::FixedLoopConfig, u8)>,
     /// Commands from the main loop.
     pub events: Vec<Event>,
+    /// A charger's main loop, when the scenario has a `[charge]`.
+    pub charge: Option<crate::sim::charger::Charge>,
     /// What the steps should meet.
     pub spec: Spec,
     /// What the run must (not) do besides.

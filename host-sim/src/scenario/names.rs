@@ -38,6 +38,8 @@ pub(super) enum Site<'a> {
     Feedforward,
     /// `FixedLoopConfig` and `FixedLoop`: the fixed-point loop.
     FixedPoint,
+    /// `ChargeConfig` and its PI: a charger's outer voltage limit.
+    Charge,
 }
 
 /// The scenario path and unit note for a pi-core field at a site (`None`: not
@@ -101,6 +103,12 @@ pub(super) fn path(site: Site, field: &str) -> Option<(String, &'static str)> {
             " (the current sensor's full scale, in amperes)",
         )),
         (Site::FixedPoint, "voltage_full_scale_v") => plain("controller.bus_full_scale_v"),
+        (Site::Charge, "charge_current_a" | "max_v") => plain("charge.current_a"),
+        (Site::Charge, "charge_voltage_v") => plain("charge.voltage_v"),
+        (Site::Charge, "taper_current_a" | "time_limit_s" | "ti_s" | "period_s") => {
+            Some((format!("charge.{field}"), ""))
+        }
+        (Site::Charge, "kp_v_per_a") => plain("charge.kp_a_per_v"),
         _ => None,
     }
 }
@@ -109,6 +117,7 @@ pub(super) fn path(site: Site, field: &str) -> Option<(String, &'static str)> {
 fn other(name: &str) -> String {
     match name {
         "bus_min_v" => "controller.protection.bus_min_v".into(),
+        "charge_current_a" => "charge.current_a".into(),
         "min_v" => "the lower output limit".into(),
         "min_a and zero" => "controller.setpoint.min_a and zero".into(),
         "the overcurrent threshold_a" => "controller.protection.overcurrent_a".into(),

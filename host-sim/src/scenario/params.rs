@@ -49,6 +49,9 @@ pub struct Params {
     /// (`[battery]`); `motor` then holds the R-L the design takes (the
     /// series resistance and the inductor).
     pub battery: Option<crate::plant::battery::BatteryParams>,
+    /// `Some`: a charger's outer voltage limit sets the current (`[charge]`,
+    /// a battery only).
+    pub charge: Option<super::charge::ChargeParams>,
     /// The H-bridge.
     pub bridge: BridgeParams,
     /// The current sense chain.

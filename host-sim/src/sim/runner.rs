@@ -31,6 +31,7 @@ use crate::plant::load::Load;
 use crate::plant::motor::MotorDrive;
 use crate::plant::sense_chain::SenseChain;
 use crate::plant::timing::Timing;
+use crate::sim::charger::{Charge, Charger};
 use crate::sim::trace::{EdgePoint, LogEntry, Trace, TracePoint};
 
 /// A scheduled command.
@@ -69,6 +70,9 @@ pub struct TickNote {
     pub bus_event: bool,
     /// An injected sensor fault changed the reading.
     pub sensor_fault: bool,
+    /// A charger's voltage limit set the current this tick (constant
+    /// voltage): the request follows the cell, not the scenario.
+    pub charge_limited: bool,
 }
 
 /// The runner.
@@ -87,6 +91,7 @@ pub struct Runner {
     ticks: u64,
     charge_a_s: f64,
     charge_time_s: f64,
+    charger: Option<Charger>,
     trace: Trace,
 }
 
@@ -109,6 +114,7 @@ impl Runner {
             ticks: 0,
             charge_a_s: 0.0,
             charge_time_s: 0.0,
+            charger: None,
             trace: Trace {
                 readouts: chain_readouts,
                 ..Trace::default()
@@ -119,6 +125,13 @@ impl Runner {
     /// Records the current at every PWM edge as well (switching mode).
     pub fn record_edges(mut self, on: bool) -> Self {
         self.record_edges = on;
+        self
+    }
+
+    /// Runs a charger's main loop (pi-core's charge limit) as well; see
+    /// [`crate::sim::charger`].
+    pub fn with_charge(mut self, charge: Option<Charge>) -> Self {
+        self.charger = charge.map(Charger::new);
         self
     }
 
@@ -150,7 +163,8 @@ impl Runner {
     }
 
     /// Ends the run and hands over its trace.
-    pub fn into_trace(self) -> Trace {
+    pub fn into_trace(mut self) -> Trace {
+        self.trace.charge = self.charger.as_ref().map(Charger::record);
         self.trace
     }
 
@@ -389,7 +403,21 @@ impl Runner {
         period: u64,
     ) -> (TracePoint, TickNote) {
         let mut note = TickNote::default();
-        // Commands from the main loop due by now.
+        // A charger's turn of the main loop, then the scenario's commands due by now.
+        if let Some(ch) = &mut self.charger {
+            for cmd in ch.pass(t_s, self.chain.load.sensed_v()).into_iter().flatten() {
+                if let Command::SetCurrent(a) = cmd {
+                    self.request_a = a as f64;
+                }
+                if let Err(why) = controller.command(cmd) {
+                    self.trace.log.push(LogEntry {
+                        t_s,
+                        text: format!("the charger's {} refused: {why}", describe(&cmd)),
+                    });
+                }
+            }
+            note.charge_limited = ch.limiting();
+        }
         while let Some(ev) = self.events.get(self.next_event) {
             if ev.at_s > t_s + 1e-12 {
                 break;

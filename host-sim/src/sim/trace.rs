@@ -75,6 +75,8 @@ pub struct Trace {
     pub edges: Vec<EdgePoint>,
     /// Refused commands and other notes.
     pub log: Vec<LogEntry>,
+    /// What a charger's main loop did, when the scenario ran one.
+    pub charge: Option<crate::sim::charger::ChargeRecord>,
     /// What [`TracePoint::load`] holds: the load's readouts, each a CSV
     /// column after [`CSV_HEADER`]'s.
     pub readouts: &'static [Readout],

@@ -114,3 +114,22 @@ fn settings_that_cannot_charge_are_refused_by_name() {
         "time_limit_s"
     );
 }
+
+#[test]
+fn a_charge_below_the_voltage_starts_at_the_full_current_and_one_above_it_from_nothing() {
+    let mut low = ChargeLimit::new(config(1000.0));
+    assert_eq!(low.update(3.7), 1.0);
+    assert_eq!(low.phase(), ChargePhase::ConstantCurrent);
+    // At the set voltage already: the error is zero, the integral starts
+    // empty, nothing flows and the phase is constant voltage (it then ends
+    // on the taper at once: the cell is full).
+    let mut full = ChargeLimit::new(config(1000.0));
+    assert_eq!(full.update(4.2), 0.0);
+    assert_eq!(full.phase(), ChargePhase::Ended(ChargeEnd::Taper));
+    // Just below it: the full current on the first update, and the
+    // proportional part takes it down as soon as the voltage arrives.
+    let mut near = ChargeLimit::new(config(1000.0));
+    assert_eq!(near.update(4.19), 1.0);
+    let next = near.update(4.21);
+    assert!(next < 1.0 && next > 0.9, "{next}");
+}
