@@ -199,3 +199,19 @@ fn a_charge_is_refused_by_its_path_in_words() {
         "{e}"
     );
 }
+
+#[test]
+fn the_design_takes_the_cell_as_its_series_resistance_and_says_what_the_integral_carries() {
+    let text = include_str!("../host-sim/scenarios/battery_charge.toml");
+    let params = host_sim::scenario::params::Params::from_toml(text, "cell").unwrap();
+    // At the current loop's frequencies the pair's 500 F is a short: the
+    // loop sees R0 and the inductor.
+    assert_eq!(params.motor.resistance_ohm, 0.06);
+    assert_eq!(params.motor.inductance_h, 100e-6);
+    let design = host_sim::prepare::design(&params, &Default::default()).unwrap();
+    let table = design.table();
+    assert!(
+        table.contains("winding R = 0.06 ohm, L = 0.0001 H, behind a counter-voltage of 3 to 4.2 V that the integral carries"),
+        "{table}"
+    );
+}

@@ -347,6 +347,7 @@ fn demo_basis(r: f64, l: f64, ts_mult: f64, overshoot_pct: f64) -> Option<Basis>
             setpoint_max_a: 1.0,
             linearised_at_a: None,
             design_gap_m: None,
+            counter_v: None,
         },
         None,
     )

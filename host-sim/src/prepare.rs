@@ -129,6 +129,17 @@ pub fn basis(params: &Params, overrides: &Overrides) -> Result<Basis, ScenarioEr
             setpoint_max_a: params.setpoint_max_a(),
             linearised_at_a: params.led.map(|l| l.design_current_a),
             design_gap_m: params.solenoid.map(|s| s.design_gap_m),
+            counter_v: match (&params.battery, params.winding_counter_v) {
+                (Some(b), _) => Some(
+                    b.ocv_table
+                        .iter()
+                        .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), &(_, v)| {
+                            (lo.min(v), hi.max(v))
+                        }),
+                ),
+                (None, Some(e)) if e != 0.0 => Some((e, e)),
+                _ => None,
+            },
         },
         overrides.delay_periods,
     )

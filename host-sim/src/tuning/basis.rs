@@ -49,6 +49,11 @@ pub struct Basis {
     pub linearised_at_a: Option<f64>,
     /// The air gap a solenoid's inductance was taken at, m; `None` otherwise.
     pub design_gap_m: Option<f64>,
+    /// The lowest and highest counter-voltage the load holds against the
+    /// current (a cell's open-circuit voltage over its charge, a winding's
+    /// constant one), V: the PI's integral carries it, the design leaves it
+    /// out; `None` for a load without one.
+    pub counter_v: Option<(f64, f64)>,
 }
 
 /// The parts of a scenario a design reads.
@@ -72,6 +77,8 @@ pub struct Inputs<'a> {
     pub linearised_at_a: Option<f64>,
     /// The air gap `motor`'s inductance was taken at, for a solenoid, m.
     pub design_gap_m: Option<f64>,
+    /// The counter-voltage range the load holds, V (see [`Basis::counter_v`]).
+    pub counter_v: Option<(f64, f64)>,
 }
 
 fn missing(field: &str) -> ModelError {
@@ -132,6 +139,7 @@ impl Basis {
             setpoint_max_a: p.setpoint_max_a,
             linearised_at_a: p.linearised_at_a,
             design_gap_m: p.design_gap_m,
+            counter_v: p.counter_v,
         };
         basis.plant()?;
         basis.sampling()?;

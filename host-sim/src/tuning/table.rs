@@ -43,7 +43,7 @@ impl DesignReport {
         let _ = writeln!(s, "{}: PI design", self.name);
         let _ = writeln!(
             s,
-            "winding R = {} ohm{}, L = {} H{}; Ts = {} us, sample-to-update delay {:.2} periods, {}",
+            "winding R = {} ohm{}, L = {} H{}{}; Ts = {} us, sample-to-update delay {:.2} periods, {}",
             b.resistance_ohm,
             match b.linearised_at_a {
                 Some(a) => format!(" (the load's slope dv/di at {a} A)"),
@@ -52,6 +52,13 @@ impl DesignReport {
             b.inductance_h,
             match b.design_gap_m {
                 Some(g) => format!(" (at an air gap of {} mm)", g * 1e3),
+                None => String::new(),
+            },
+            match b.counter_v {
+                Some((lo, hi)) if lo == hi =>
+                    format!(", behind a counter-voltage of {lo} V that the integral carries"),
+                Some((lo, hi)) =>
+                    format!(", behind a counter-voltage of {lo} to {hi} V that the integral carries"),
                 None => String::new(),
             },
             b.period_s * 1e6,
