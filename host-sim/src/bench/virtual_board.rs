@@ -133,6 +133,14 @@ impl VirtualBoard {
             )
             .into());
         }
+        if scenario.charge.is_some() {
+            return Err(crate::model_error::ModelError::new(
+                "charge",
+                "(given)",
+                "left out for the virtual board: its firmware, the bench link's, takes its setpoint over the link and has no charge limit",
+            )
+            .into());
+        }
         let cl = scenario.float_loop()?;
         let period_s = scenario.timing.control_period_s();
         Ok(Self {
