@@ -220,10 +220,10 @@ fn the_design_takes_the_cell_as_its_series_resistance_and_says_what_the_integral
 fn the_virtual_board_refuses_a_charge_in_words() {
     let s =
         host_sim::Scenario::parse(include_str!("../host-sim/scenarios/battery_charge.toml"), "cell").unwrap();
-    let e = host_sim::bench::virtual_board::VirtualBoard::new(&s, 1e-3)
-        .err()
-        .expect("refused")
-        .to_string();
+    let Err(e) = host_sim::bench::virtual_board::VirtualBoard::new(&s, 1e-3) else {
+        panic!("a virtual board with a charge");
+    };
+    let e = e.to_string();
     assert!(
         e.starts_with("charge = (given) must be left out for the virtual board"),
         "{e}"
