@@ -6,7 +6,7 @@
 //! charge turning to constant voltage, its end) are dotted lines through all
 //! panels with their words.
 
-use crate::plot::svg::{Axis, Canvas, format_tick, padded, trace_series};
+use crate::plot::svg::{Axis, Canvas, format_tick, padded, time_axis, trace_series};
 use crate::results::report::Report;
 use crate::sim::trace::{Trace, TracePoint};
 
@@ -80,13 +80,8 @@ pub fn load_run_svg(trace: &Trace, plot: &LoadPlot) -> String {
     let (left, right) = (90.0, w - 40.0);
     let mut c = Canvas::new(w, h);
     c.text(left, 30.0, &plot.title, 15.0, "start", "#111");
-    let t_end = pts.last().map_or(1.0, |p| p.t_s).max(1e-9);
-    let x = Axis {
-        lo: 0.0,
-        hi: t_end,
-        px_lo: left,
-        px_hi: right,
-    };
+    let x = time_axis(pts, 1.0, left, right);
+    let t_end = x.hi;
     let fmt = |t: f64| format_tick(t);
     let panel_axis = |k: usize, lo: f64, hi: f64| {
         let top = TOP + k as f64 * (PANEL + GAP);

@@ -148,13 +148,8 @@ pub fn step_response_svg(trace: &Trace, plot: &StepPlot) -> String {
     let (left, right, top, bottom) = (70.0, w - 80.0, 96.0, h - 96.0);
     let mut c = Canvas::new(w, h);
     let pts = &trace.points;
-    let t_end = pts.last().map_or(1e-3, |p| p.t_s).max(1e-9);
-    let x = Axis {
-        lo: 0.0,
-        hi: t_end,
-        px_lo: left,
-        px_hi: right,
-    };
+    let x = crate::plot::svg::time_axis(pts, 1e-3, left, right);
+    let t_end = x.hi;
     let (mut lo, mut hi) = (0.0f64, 0.0f64);
     for p in pts {
         for v in [p.current_a, p.setpoint_a, p.request_a, p.measured_a] {
