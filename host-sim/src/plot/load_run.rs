@@ -6,7 +6,8 @@
 //! charge turning to constant voltage, its end) are dotted lines through all
 //! panels with their words.
 
-use crate::plot::svg::{Axis, Canvas, format_tick, padded, time_axis, trace_series};
+use crate::plot::svg::{Axis, Canvas, format_tick, padded, trace_series};
+use crate::plot::time_axis;
 use crate::results::report::Report;
 use crate::sim::trace::{Trace, TracePoint};
 

@@ -16,7 +16,7 @@ pub fn long_run_svg(title: &str, trace: &Trace, first_fault: Option<(&str, f64)>
     let (left, right) = (80.0, w - 40.0);
     let mut c = Canvas::new(w, h);
     let pts = &trace.points;
-    let x = crate::plot::svg::time_axis(pts, 1.0, left, right);
+    let x = crate::plot::time_axis(pts, 1.0, left, right);
     let t_end = x.hi;
     let (tlo, thi) = pts.iter().fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), p| {
         (a.min(p.winding_c), b.max(p.winding_c))

@@ -148,7 +148,7 @@ pub fn step_response_svg(trace: &Trace, plot: &StepPlot) -> String {
     let (left, right, top, bottom) = (70.0, w - 80.0, 96.0, h - 96.0);
     let mut c = Canvas::new(w, h);
     let pts = &trace.points;
-    let x = crate::plot::svg::time_axis(pts, 1e-3, left, right);
+    let x = crate::plot::time_axis(pts, 1e-3, left, right);
     let t_end = x.hi;
     let (mut lo, mut hi) = (0.0f64, 0.0f64);
     for p in pts {

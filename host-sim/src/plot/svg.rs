@@ -462,17 +462,6 @@ pub fn trace_series(
         .collect()
 }
 
-/// The time axis of a run's picture: from 0 to the last point's time
-/// (`empty_s` for a trace without points), across `left..right` pixels.
-pub fn time_axis(pts: &[crate::sim::trace::TracePoint], empty_s: f64, left: f64, right: f64) -> Axis {
-    Axis {
-        lo: 0.0,
-        hi: pts.last().map_or(empty_s, |p| p.t_s).max(1e-9),
-        px_lo: left,
-        px_hi: right,
-    }
-}
-
 /// Whether two boxes `(x0, y0, x1, y1)` overlap.
 pub fn overlaps(a: (f64, f64, f64, f64), b: (f64, f64, f64, f64)) -> bool {
     a.0 < b.2 && b.0 < a.2 && a.1 < b.3 && b.1 < a.3
