@@ -22,8 +22,8 @@ use core::hint::black_box;
 use core::panic::PanicInfo;
 
 use pi_core::capture::{Capture, CaptureSpec, Trigger};
-use pi_core::design::{RlPlant, Sampling, Spec, discrete};
 use pi_core::current_loop::fixed::{FixedCommand, FixedDrive, FixedLoop, FixedLoopConfig, FixedTickInput};
+use pi_core::design::{RlPlant, Sampling, Spec, discrete};
 use pi_core::pi::fixed::{FixedPi, FixedScale};
 use pi_core::prelude::*;
 
@@ -378,8 +378,12 @@ fn main() -> u32 {
 
     // The fixed-point PI on the same configuration, full scales 8 A and
     // 32 V (1.5 A is 6144 counts, 4 A 16384).
-    let Ok(scale) = FixedScale::new(8.0, 32.0) else { return 2 };
-    let Ok(mut fixed) = FixedPi::new(pi_config, scale) else { return 2 };
+    let Ok(scale) = FixedScale::new(8.0, 32.0) else {
+        return 2;
+    };
+    let Ok(mut fixed) = FixedPi::new(pi_config, scale) else {
+        return 2;
+    };
     scenario(b"scenario fixed_pi_linear\n", || {
         for k in 0..20 {
             fixed_pi_call(&mut fixed, 6144, 5939 + 4 * k);
@@ -391,6 +395,35 @@ fn main() -> u32 {
                 fixed_pi_call(&mut fixed, 16384, -8192);
             } else {
                 fixed_pi_call(&mut fixed, -16384, 8192);
+            }
+        }
+    });
+
+    // A setpoint weight of 0 (what direct placement and the root locus
+    // design give): the proportional part in two products, the saturated
+    // step's offset `Kp (1 - b) r`, both arithmetics.
+    let Some(weighted) = PiGains::from_kp_ti(black_box(12.06), black_box(1.263e-3))
+        .and_then(|g| g.with_setpoint_weight(0.0))
+        .ok()
+        .and_then(|g| PiConfig::new(g, 50e-6, OutputLimits::symmetric(22.8).ok()?).ok())
+    else {
+        return 2;
+    };
+    let mut pi = PiController::new(weighted);
+    scenario(b"scenario pi_weighted_mixed\n", || {
+        for k in 0..20 {
+            pi_call(&mut pi, if k < 10 { 1.5 } else { 4.0 }, -1.0 + 0.1 * k as f32);
+        }
+    });
+    let Ok(mut fixed) = FixedPi::new(weighted, scale) else {
+        return 2;
+    };
+    scenario(b"scenario fixed_pi_weighted_mixed\n", || {
+        for k in 0..20 {
+            if k < 10 {
+                fixed_pi_call(&mut fixed, 6144, 5939 + 4 * k);
+            } else {
+                fixed_pi_call(&mut fixed, 16384, -8192);
             }
         }
     });
