@@ -229,3 +229,16 @@ fn the_virtual_board_refuses_a_charge_in_words() {
         "{e}"
     );
 }
+
+#[test]
+fn a_charge_that_starts_with_the_enable_is_taken_on_the_same_tick() {
+    // A charge from 0 s beside the enable at 0 s: nothing is refused and
+    // the first tick already asks for the charge current.
+    let text = include_str!("../host-sim/scenarios/battery_charge.toml")
+        .replace("start_s = 1e-3", "start_s = 0.0")
+        .replace("duration_s = 60.0", "duration_s = 0.01");
+    let s = host_sim::Scenario::parse(&text, "cell").unwrap();
+    let (trace, report) = host_sim::results::report::run(&s, None, &mut |_| {}).unwrap();
+    assert!(report.log.is_empty(), "{:?}", report.log);
+    assert_eq!(trace.points[0].request_a, 2.0);
+}

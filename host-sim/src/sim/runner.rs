@@ -403,21 +403,7 @@ impl Runner {
         period: u64,
     ) -> (TracePoint, TickNote) {
         let mut note = TickNote::default();
-        // A charger's turn of the main loop, then the scenario's commands due by now.
-        if let Some(ch) = &mut self.charger {
-            for cmd in ch.pass(t_s, self.chain.load.sensed_v()).into_iter().flatten() {
-                if let Command::SetCurrent(a) = cmd {
-                    self.request_a = a as f64;
-                }
-                if let Err(why) = controller.command(cmd) {
-                    self.trace.log.push(LogEntry {
-                        t_s,
-                        text: format!("the charger's {} refused: {why}", describe(&cmd)),
-                    });
-                }
-            }
-            note.charge_limited = ch.limiting();
-        }
+        // The scenario's commands due by now.
         while let Some(ev) = self.events.get(self.next_event) {
             if ev.at_s > t_s + 1e-12 {
                 break;
@@ -434,6 +420,21 @@ impl Runner {
                 });
             }
             self.next_event += 1;
+        }
+        // Then a charger's turn of the main loop (after an enable due now).
+        if let Some(ch) = &mut self.charger {
+            for cmd in ch.pass(t_s, self.chain.load.sensed_v()).into_iter().flatten() {
+                if let Command::SetCurrent(a) = cmd {
+                    self.request_a = a as f64;
+                }
+                if let Err(why) = controller.command(cmd) {
+                    self.trace.log.push(LogEntry {
+                        t_s,
+                        text: format!("the charger's {} refused: {why}", describe(&cmd)),
+                    });
+                }
+            }
+            note.charge_limited = ch.limiting();
         }
         let full_scale = ((1u32 << self.chain.sense.params().adc_bits) - 1) as u16;
         let raw = self.chain.sense.convert();
