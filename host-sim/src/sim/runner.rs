@@ -17,7 +17,7 @@
 //!
 //! Scenario events (enable, a new setpoint, a retune) are handed to the controller
 //! before the first tick at or after their time, as the firmware's main loop would
-//! between two interrupts.
+//! between two interrupts; then a charger's turn ([`crate::sim::charger`]).
 
 use std::collections::VecDeque;
 
@@ -421,7 +421,6 @@ impl Runner {
             }
             self.next_event += 1;
         }
-        // Then a charger's turn of the main loop (after an enable due now).
         if let Some(ch) = &mut self.charger {
             for cmd in ch.pass(t_s, self.chain.load.sensed_v()).into_iter().flatten() {
                 if let Command::SetCurrent(a) = cmd {
