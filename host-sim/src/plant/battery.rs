@@ -13,7 +13,7 @@
 use crate::model_error::ModelError;
 
 use super::load::{Load, READOUTS, Readout, rl_time_to_zero_s};
-use super::motor::{MotorDrive, REFERENCE_C};
+use super::motor::MotorDrive;
 
 /// The battery's parameters, SI units.
 #[derive(Clone, Debug, PartialEq)]
@@ -193,10 +193,6 @@ impl Load for Battery {
 
     fn open_circuit_v(&self) -> f64 {
         self.params.ocv_v(self.soc) + self.polarisation_v
-    }
-
-    fn temperature_c(&self) -> f64 {
-        REFERENCE_C
     }
 
     fn resistance_ohm(&self) -> f64 {

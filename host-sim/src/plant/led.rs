@@ -19,7 +19,7 @@
 use crate::model_error::ModelError;
 
 use super::load::{Load, READOUTS, Readout};
-use super::motor::{MotorDrive, REFERENCE_C};
+use super::motor::MotorDrive;
 
 /// Boltzmann's constant, J/K (exact in the SI since 2019).
 pub const BOLTZMANN_J_PER_K: f64 = 1.380649e-23;
@@ -214,21 +214,6 @@ impl Load for LedString {
 
     fn stop_current(&mut self) {
         self.current_a = 0.0;
-    }
-
-    fn time_to_zero_s(&self, _terminal_v: f64, _within_s: f64) -> Option<f64> {
-        // The string stops its own current at zero within its step (the
-        // diodes block), so a diode-clamped interval is stepped whole.
-        (self.current_a == 0.0).then_some(0.0)
-    }
-
-    fn open_circuit_v(&self) -> f64 {
-        // With no current the string holds no voltage of its own.
-        0.0
-    }
-
-    fn temperature_c(&self) -> f64 {
-        REFERENCE_C
     }
 
     fn resistance_ohm(&self) -> f64 {

@@ -36,17 +36,29 @@ pub trait Load: fmt::Debug + Send + Sync {
     /// Sets the current to exactly zero (a diode stopped conducting).
     fn stop_current(&mut self);
     /// The time for the current to reach zero under `terminal_v` held, or
-    /// `None` if it does not within `within_s`.
-    fn time_to_zero_s(&self, terminal_v: f64, within_s: f64) -> Option<f64>;
+    /// `None` if it does not within `within_s`. By default the load is
+    /// stepped whole through a diode-clamped interval: `Some(0)` only when
+    /// it carries no current, and a current that crosses zero in the step is
+    /// stopped by the runner after it (a load whose own diodes block, a
+    /// stepped nonlinear coil).
+    fn time_to_zero_s(&self, _terminal_v: f64, _within_s: f64) -> Option<f64> {
+        (self.current_a() == 0.0).then_some(0.0)
+    }
     /// The voltage across the terminals with no current flowing, volts: a
-    /// motor's back-EMF, a source's counter-voltage.
-    fn open_circuit_v(&self) -> f64;
+    /// motor's back-EMF, a source's counter-voltage; 0 by default (a load
+    /// that holds no voltage of its own without current).
+    fn open_circuit_v(&self) -> f64 {
+        0.0
+    }
     /// Shaft speed, rad/s (0 for a load without a shaft).
     fn speed_rad_s(&self) -> f64 {
         0.0
     }
-    /// Winding temperature, C.
-    fn temperature_c(&self) -> f64;
+    /// Winding temperature, C; the reference temperature by default (a load
+    /// without a thermal model).
+    fn temperature_c(&self) -> f64 {
+        super::motor::REFERENCE_C
+    }
     /// Present resistance, ohm.
     fn resistance_ohm(&self) -> f64;
     /// Whether its copper heats (a thermal model is on).

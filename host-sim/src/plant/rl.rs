@@ -10,7 +10,7 @@
 use crate::model_error::ModelError;
 
 use super::load::{Load, rl_time_to_zero_s};
-use super::motor::{MotorDrive, REFERENCE_C};
+use super::motor::MotorDrive;
 
 /// The winding's parameters, SI units.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -83,10 +83,6 @@ impl Load for RlLoad {
 
     fn open_circuit_v(&self) -> f64 {
         self.params.counter_v
-    }
-
-    fn temperature_c(&self) -> f64 {
-        REFERENCE_C
     }
 
     fn resistance_ohm(&self) -> f64 {

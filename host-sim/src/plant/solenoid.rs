@@ -23,7 +23,7 @@
 use crate::model_error::ModelError;
 
 use super::load::{Load, READOUTS, Readout};
-use super::motor::{MotorDrive, REFERENCE_C};
+use super::motor::MotorDrive;
 
 /// The magnetic constant, H/m (CODATA 2018).
 pub const MU0_H_PER_M: f64 = 1.256_637_062_12e-6;
@@ -311,20 +311,6 @@ impl Load for Solenoid {
 
     fn stop_current(&mut self) {
         self.current_a = 0.0;
-    }
-
-    fn time_to_zero_s(&self, _terminal_v: f64, _within_s: f64) -> Option<f64> {
-        // Stepped whole: a current that crosses zero in a diode state is
-        // stopped by the runner after the step.
-        (self.current_a == 0.0).then_some(0.0)
-    }
-
-    fn open_circuit_v(&self) -> f64 {
-        0.0
-    }
-
-    fn temperature_c(&self) -> f64 {
-        REFERENCE_C
     }
 
     fn resistance_ohm(&self) -> f64 {
