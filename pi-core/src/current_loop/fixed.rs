@@ -477,40 +477,40 @@ impl FixedLoop {
         // The short path: running, every reading in range, nothing counting,
         // no trip; the same result as the full check below (tests hold them
         // side by side).
-        if self.quiet
+        let quiet = self.quiet
             && self.state == LoopState::Running
             && !hot_trip
             && c.wrapping_sub(self.quiet_low) <= self.quiet_span
             && b.wrapping_sub(self.bus_quiet_low) <= self.bus_quiet_span
             && self.supervisor.settled()
-            && self.supervisor.quiet_counts(c, driven, still_hot)
-        {
-            let command = self.run(i, b);
-            self.last = command;
-            return command;
-        }
-        let latched = self.supervisor.judge(&Verdict {
-            present: FaultSet::EMPTY
-                .with_if(Fault::Overcurrent, c.wrapping_sub(self.over_low) > self.over_span)
-                .with_if(Fault::Overload, still_hot || hot_trip)
-                .with_if(Fault::SensorRail, c.wrapping_sub(self.rail_low) > self.rail_span)
-                .with_if(Fault::BusUndervoltage, b < self.bus_low)
-                .with_if(Fault::BusOvervoltage, b > self.bus_high),
-            hot_trip,
-            counts: c,
-            driven,
-        });
-        let command = if !latched.is_empty() {
-            if self.state != LoopState::Faulted {
-                self.stop();
-                self.state = LoopState::Faulted;
+            && self.supervisor.quiet_counts(c, driven, still_hot);
+        if !quiet {
+            let latched = self.supervisor.judge(&Verdict {
+                present: FaultSet::EMPTY
+                    .with_if(Fault::Overcurrent, c.wrapping_sub(self.over_low) > self.over_span)
+                    .with_if(Fault::Overload, still_hot || hot_trip)
+                    .with_if(Fault::SensorRail, c.wrapping_sub(self.rail_low) > self.rail_span)
+                    .with_if(Fault::BusUndervoltage, b < self.bus_low)
+                    .with_if(Fault::BusOvervoltage, b > self.bus_high),
+                hot_trip,
+                counts: c,
+                driven,
+            });
+            if !latched.is_empty() {
+                if self.state != LoopState::Faulted {
+                    self.stop();
+                    self.state = LoopState::Faulted;
+                }
+                self.last = FixedDrive::SAFE;
+                return FixedDrive::SAFE;
             }
-            FixedDrive::SAFE
-        } else if self.state == LoopState::Running {
-            self.run(i, b)
-        } else {
-            FixedDrive::SAFE
-        };
+            if self.state != LoopState::Running {
+                self.last = FixedDrive::SAFE;
+                return FixedDrive::SAFE;
+            }
+        }
+        // One running step for both paths.
+        let command = self.run(i, b);
         self.last = command;
         command
     }
