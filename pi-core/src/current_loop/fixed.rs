@@ -329,20 +329,35 @@ pub struct FixedLoop {
     last_current_q15: i16,
     last: FixedDrive,
     state: LoopState,
-    heat: Option<FixedHeat>,
     pi: FixedPi,
+    heat: Option<FixedHeat>,
     supervisor: Supervisor,
     config: FixedLoopConfig,
 }
 
+/// `2^30 / b'` at the middle of each 64-count interval of `b'` in `[2^14,
+/// 2^15)`, rounded: `RECIPROCALS[k]` for `b'` in `[2^14 + 64 k, 2^14 + 64 (k
+/// + 1))`. Every entry lies in `(2^15, 2^16)`, so 512 bytes of flash.
+static RECIPROCALS: [u16; 256] = {
+    let mut table = [0u16; 256];
+    let mut k = 0;
+    while k < 256 {
+        let middle = (1u32 << 14) + 64 * k as u32 + 32;
+        table[k] = (((1u32 << 30) + middle / 2) / middle) as u16;
+        k += 1;
+    }
+    table
+};
+
 /// `v 2^15 / b` for `v <= b < 2^15`, within 2^-15 of the exact quotient
-/// relative plus one count, without a division (the
-/// Cortex-M0 has none; the library's takes about 140 instructions): `b`
-/// shifted left by `s` into `[2^14, 2^15)`, a linear first guess of
-/// `2^30 / b'` (relative error at most 1/17), two Newton steps (error below
-/// `(1/17)^4 = 1.2e-5`; with the rounding at most 2.5e-5 over every `b'`),
-/// then `v R >> (15 - s)` (the tests run every divisor).
-/// `b = 0` gives 0.
+/// relative plus one count, without a division (the Cortex-M0 has none; the
+/// library's takes about 140 instructions): `b` shifted left by `s` into
+/// `[2^14, 2^15)`, `R = 2^30 / b'` from [`RECIPROCALS`] (relative error at
+/// most 1/513 plus its rounding: half an interval over the interval's
+/// middle), one Newton step (error below `(1/513)^2 = 3.8e-6` before
+/// rounding; `R` itself, an integer near 2^16, rounds to 1.5e-5: at most
+/// 1.6e-5 over every `b'`), then `v R >> (15 - s)` (the tests run every
+/// divisor). `b = 0` gives 0.
 #[inline(always)]
 pub(crate) fn quotient_q15(v: u32, b: u32) -> u32 {
     if b == 0 {
@@ -353,15 +368,14 @@ pub(crate) fn quotient_q15(v: u32, b: u32) -> u32 {
         b <<= 1;
         s += 1;
     }
-    // On x = b' / 2^15 in [0.5, 1): 1/x ~ 48/17 - 32/17 x, in Q15 of 2^15:
-    // R = 2^30 / b' ~ (48/17) 2^15 - (32/17) b'.
-    let mut r = 92_521u32 - ((b * 61_681) >> 15);
-    for _ in 0..2 {
-        // e = 2^30 - b' R, at most 2^30 / 17; R += R e / 2^30, with e
-        // taken to 2^-18 (|R e| below 2^31).
-        let e = ((1i32 << 30).wrapping_sub((b * r) as i32) + (1 << 11)) >> 12;
-        r = (r as i32 + ((r as i32 * e + (1 << 17)) >> 18)) as u32;
-    }
+    // b < 2^15 by the contract, so the index is below 256; `& 255` keeps
+    // the lookup free of a bounds check.
+    let r = RECIPROCALS[((b >> 6) & 255) as usize] as i32;
+    // e = 2^30 - b' R, at most 2^30 / 513 + 2^14 <= 2^22 in size (b' R <
+    // 2^31); R += R e / 2^30, with e taken to 2^-22 (|R e / 2^8| below
+    // 2^16 2^14 = 2^30).
+    let e = (1i32 << 30).wrapping_sub((b * r as u32) as i32);
+    let r = (r + ((r * ((e + (1 << 7)) >> 8) + (1 << 21)) >> 22)) as u32;
     (v * r) >> ((15 - s) & 31)
 }
 

@@ -491,6 +491,18 @@ proptest! {
 }
 
 #[test]
+fn the_reciprocal_table_holds_each_interval_s_middle_in_sixteen_bits() {
+    // The const evaluation narrows to u16: an entry of 2^16 or more would
+    // wrap, so check each against the wide computation.
+    for (k, &r) in super::RECIPROCALS.iter().enumerate() {
+        let middle = 16384.0 + 64.0 * k as f64 + 32.0;
+        let exact = 1_073_741_824.0 / middle;
+        assert!((r as f64 - exact).abs() <= 0.5, "entry {k}: {r} against {exact}");
+        assert!(r > 32768, "entry {k}: {r}");
+    }
+}
+
+#[test]
 fn the_quotient_without_a_division_is_within_two_to_the_minus_15() {
     // Every divisor, numerators across the range (the duty's quotient is at
     // most 2^15, since |v| never exceeds what the bus gives).
