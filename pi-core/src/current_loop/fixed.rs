@@ -322,6 +322,9 @@ pub struct FixedLoop {
     bus_quiet_low: u16,
     bus_quiet_span: u16,
     quiet: bool,
+    /// A reversing drive whose PI limits hold what the bus gives at the top
+    /// of its window: the bus alone sets the PI's limits each tick.
+    bus_sets_limits: bool,
     /// `bus_q15 = counts << bus_shift`; the PI's volts are the bus ADC's
     /// scaled down by `2^volt_shift`.
     bus_shift: u32,
@@ -424,8 +427,20 @@ impl FixedLoop {
         let sp_min = scale.amperes_inward(limits.min_a(), true)?;
         let sp_max = scale.amperes_inward(limits.max_a(), false)?;
         let slew = limits.slew_a_per_s() * period_s / scale.current_full_scale_a() * (1u32 << 27) as f32;
-        let sp_step = Fixed(if slew >= i32::MAX as f32 {
-            i32::MAX
+        // The setpoint stays inside the sensor's range (its limits are below
+        // the overcurrent threshold, which the sensor reads): below one full
+        // scale, 2^27. A step of 2^30 crosses that range four times over in
+        // one tick, so a larger one changes nothing, and with it the slew's
+        // sum and difference stay below 2^31 with no saturation.
+        if sp_min.0 <= -(1 << 29) || sp_max.0 >= 1 << 29 {
+            return Err(ConfigError::new(
+                "setpoint_max_a",
+                limits.max_magnitude_a(),
+                Requirement::Below("the current sensor's full scale"),
+            ));
+        }
+        let sp_step = Fixed(if slew >= (1u32 << 30) as f32 {
+            1 << 30
         } else if slew < 1.0 {
             1
         } else {
@@ -439,10 +454,18 @@ impl FixedLoop {
         let bus_quiet_low = bus_low.max(min_bus);
         let quiet = quiet_counts.is_some() && bus_quiet_low <= bus_high;
         let (quiet_low, quiet_span) = quiet_counts.unwrap_or((0, 0));
+        let max_duty_q15 = q15(duty.max_duty()).min(32767);
+        let pi = config.pi()?;
+        // What the bus gives at the top of its window (run's expression; a
+        // running tick never sees a bus above the window).
+        let widest = ((((bus_high as u32) << config.bus_shift) * max_duty_q15) >> (15 + config.volt_shift))
+            << GUARD_BITS;
+        let (pi_min, pi_max) = pi.limits_q27();
+        let bus_sets_limits = duty.reverses() && pi_min.0 <= -(widest as i32) && pi_max.0 >= widest as i32;
         Ok(Self {
             supervisor: Supervisor::counting(*sup),
             heat,
-            pi: config.pi()?,
+            pi,
             state: LoopState::Disabled,
             count_step: step,
             offset_q,
@@ -460,7 +483,8 @@ impl FixedLoop {
             quiet,
             bus_shift: config.bus_shift,
             volt_shift: config.volt_shift,
-            max_duty_q15: q15(duty.max_duty()).min(32767),
+            max_duty_q15,
+            bus_sets_limits,
             stuck_drive_q15,
             sp_min,
             sp_max,
@@ -533,12 +557,12 @@ impl FixedLoop {
     #[inline(always)]
     fn run(&mut self, current_q15: i16, bus_counts: u16) -> FixedDrive {
         // Slew toward the target.
-        let r = self
-            .target
-            .0
-            .max(self.setpoint.0.saturating_sub(self.sp_step.0))
-            .min(self.setpoint.0.saturating_add(self.sp_step.0));
-        self.setpoint = Fixed(r);
+        // Slew toward the target (no sum can overflow: see `new`).
+        let mut r = self.setpoint.0;
+        if r != self.target.0 {
+            r = self.target.0.max(r - self.sp_step.0).min(r + self.sp_step.0);
+            self.setpoint = Fixed(r);
+        }
         let bus_q15 = (bus_counts as u32) << (self.bus_shift & 31);
         let good_bus = bus_counts >= self.min_bus;
         // What the bus gives now, Q27 of the PI's voltage full scale (0 below
@@ -548,14 +572,18 @@ impl FixedLoop {
         } else {
             0
         } as i32;
-        let v = self.pi.step_within(
-            Fixed(r),
-            Fixed::from_q15(current_q15),
-            Fixed(-available),
-            Fixed(available),
-        );
-        self.last_volts = v;
-        let v = v.to_q15() as i32;
+        let (r, y) = (Fixed(r), Fixed::from_q15(current_q15));
+        let v = if self.bus_sets_limits {
+            // Inside the configured range, and at most what the bus gives
+            // (below 2^27): its Q15 needs no saturation.
+            let v = self.pi.step(r, y, Fixed(-available), Fixed(available));
+            self.last_volts = v;
+            v.0 >> GUARD_BITS
+        } else {
+            let v = self.pi.step_within(r, y, Fixed(-available), Fixed(available));
+            self.last_volts = v;
+            v.to_q15() as i32
+        };
         if !good_bus {
             return FixedDrive::SAFE;
         }

@@ -348,6 +348,11 @@ impl FixedPi {
         self.step(r, y, lo, hi)
     }
 
+    /// The configured output limits in Q27 of the voltage full scale.
+    pub(crate) fn limits_q27(&self) -> (Fixed, Fixed) {
+        (self.min, self.max)
+    }
+
     /// One step in Q27 with limits `lo <= hi` inside the configured range.
     #[inline(always)]
     pub(crate) fn step(&mut self, r: Fixed, y: Fixed, lo: Fixed, hi: Fixed) -> Fixed {
