@@ -322,6 +322,10 @@ pub struct FixedLoop {
     bus_quiet_low: u16,
     bus_quiet_span: u16,
     quiet: bool,
+    /// `quiet`, running, and the supervisor settled: the conditions of the
+    /// short path that change only with a command or a full check, kept
+    /// as one flag for it.
+    ready: bool,
     /// A reversing drive whose PI limits hold what the bus gives at the top
     /// of its window: the bus alone sets the PI's limits each tick.
     bus_sets_limits: bool,
@@ -481,6 +485,7 @@ impl FixedLoop {
             bus_quiet_low,
             bus_quiet_span: bus_high.wrapping_sub(bus_quiet_low),
             quiet,
+            ready: false,
             bus_shift: config.bus_shift,
             volt_shift: config.volt_shift,
             max_duty_q15,
@@ -515,12 +520,10 @@ impl FixedLoop {
         // The short path: running, every reading in range, nothing counting,
         // no trip; the same result as the full check below (tests hold them
         // side by side).
-        let quiet = self.quiet
-            && self.state == LoopState::Running
+        let quiet = self.ready
             && !hot_trip
             && c.wrapping_sub(self.quiet_low) <= self.quiet_span
             && b.wrapping_sub(self.bus_quiet_low) <= self.bus_quiet_span
-            && self.supervisor.settled()
             && self.supervisor.quiet_counts(c, driven, still_hot);
         if !quiet {
             let latched = self.supervisor.judge(&Verdict {
@@ -539,13 +542,16 @@ impl FixedLoop {
                     self.stop();
                     self.state = LoopState::Faulted;
                 }
+                self.ready = false;
                 self.last = FixedDrive::SAFE;
                 return FixedDrive::SAFE;
             }
             if self.state != LoopState::Running {
+                self.ready = false;
                 self.last = FixedDrive::SAFE;
                 return FixedDrive::SAFE;
             }
+            self.ready = self.quiet && self.supervisor.settled();
         }
         // One running step for both paths.
         let command = self.run(i, b);
@@ -609,6 +615,12 @@ impl FixedLoop {
 
     /// Carries out a command from the main loop. On error nothing changed.
     pub fn apply(&mut self, command: FixedCommand) -> Result<FixedAcceptance, CommandError> {
+        let reply = self.carry_out(command);
+        self.ready = self.quiet && self.state == LoopState::Running && self.supervisor.settled();
+        reply
+    }
+
+    fn carry_out(&mut self, command: FixedCommand) -> Result<FixedAcceptance, CommandError> {
         match command {
             FixedCommand::SetCurrent(q) => {
                 self.state.takes_setpoint(self.supervisor.latched())?;

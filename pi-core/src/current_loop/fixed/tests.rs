@@ -105,16 +105,18 @@ fn lockstep(
     let mut latches = Vec::new();
     for (k, &(c, b)) in readings.iter().enumerate() {
         let before = float.supervisor().latched();
-        float.tick(&TickInput {
+        let f = float.tick(&TickInput {
             current_counts: c,
             bus_v: b as f32 * vpc,
             speed_rad_s: None,
         });
-        fixed.tick(FixedTickInput {
+        let x = fixed.tick(FixedTickInput {
             current_counts: c,
             bus_counts: b,
         });
         assert_eq!(float.state(), fixed.state(), "tick {k}: reading {c}, bus {b}");
+        // The bridge on or off alike (off in every state but running).
+        assert_eq!(f.enabled, x.enabled, "tick {k}: reading {c}, bus {b}");
         assert_eq!(
             float.supervisor().latched(),
             fixed.supervisor().latched(),
