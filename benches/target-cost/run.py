@@ -53,6 +53,8 @@ PROBES = {
     "fixed_loop_overcurrent_counting": "probe_fixed_loop_tick",
     "fixed_loop_hot_winding": "probe_fixed_loop_tick",
     "fixed_loop_faulted": "probe_fixed_loop_tick",
+    "loop_worst": "probe_loop_tick",
+    "fixed_loop_worst": "probe_fixed_loop_tick",
     "capture_idle": "probe_capture",
     "capture_armed": "probe_capture",
     "capture_filling": "probe_capture",

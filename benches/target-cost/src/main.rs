@@ -278,6 +278,44 @@ fn demo_fixed_loop() -> Option<FixedLoop> {
     FixedLoop::new(config).ok()
 }
 
+/// The demo loop with everything on that can cost a tick: stuck detection
+/// (band 0 counts, 100 ticks, 5 % drive), a speed limit of 600 rad/s and
+/// feedforward of the winding's 1.9 ohm and an invented 0.02 V s/rad.
+fn full_loop() -> Option<CurrentLoop> {
+    let base = *demo_loop()?.config();
+    let supervisor = (*base.supervisor())
+        .with_stuck_detection(StuckDetection::new(0, 100, 0.05).ok()?)
+        .with_speed_limit(SpeedLimit::new(600.0).ok()?);
+    let config = LoopConfig::new(
+        *base.sense(),
+        *base.setpoint(),
+        supervisor,
+        *base.pi(),
+        *base.duty(),
+    )
+    .ok()?
+    .with_feedforward(Feedforward::new(black_box(1.9), black_box(0.02)).ok()?)
+    .ok()?;
+    CurrentLoop::new(config).ok()
+}
+
+/// The demo fixed-point loop with stuck detection on as in `full_loop`
+/// (it takes no speed and no feedforward).
+fn full_fixed_loop() -> Option<FixedLoop> {
+    let base = *demo_loop()?.config();
+    let supervisor = (*base.supervisor()).with_stuck_detection(StuckDetection::new(0, 100, 0.05).ok()?);
+    let base = LoopConfig::new(
+        *base.sense(),
+        *base.setpoint(),
+        supervisor,
+        *base.pi(),
+        *base.duty(),
+    )
+    .ok()?;
+    let config = FixedLoopConfig::new(base, 12, black_box(40.0 / 4096.0)).ok()?;
+    FixedLoop::new(config).ok()
+}
+
 /// Bus counts of 24 V on the demo's bus ADC.
 const BUS_24V: u16 = 2458;
 
@@ -504,6 +542,35 @@ fn main() -> u32 {
     scenario(b"scenario fixed_loop_faulted\n", || {
         for _ in 0..20 {
             fixed_tick_call(&mut fl, 4095, BUS_24V);
+        }
+    });
+    // Everything that costs a tick at once, on the loops with every
+    // protection on: the setpoint slewing (its target alternating 0.2 A
+    // either side, at 0.1 A per tick), a reading of 6.5 A two ticks in
+    // three (the overcurrent and the stuck detector counting, the PI
+    // saturated low, never a trip), over three thermal steps (600 ticks):
+    // the slowest ticks are the thermal step's first and last.
+    let Some(mut cl) = full_loop() else { return 2 };
+    scenario(b"scenario loop_worst\n", || {
+        let _ = cl.apply(Command::Enable);
+        for k in 0..600 {
+            let _ = cl.apply(Command::SetCurrent(if k % 2 == 0 { 1.7 } else { 1.3 }));
+            let amps = if k % 3 == 2 { 1.5 } else { 6.5 };
+            let input = black_box(TickInput {
+                current_counts: counts_of(amps),
+                bus_v: 24.0,
+                speed_rad_s: Some(300.0),
+            });
+            measure(|| probe_loop_tick(black_box(&mut cl), &input));
+        }
+    });
+    let Some(mut fl) = full_fixed_loop() else { return 2 };
+    scenario(b"scenario fixed_loop_worst\n", || {
+        let _ = fl.apply(FixedCommand::Enable);
+        for k in 0..600 {
+            let _ = fl.apply(FixedCommand::SetCurrent(q15(if k % 2 == 0 { 1.7 } else { 1.3 })));
+            let amps = if k % 3 == 2 { 1.5 } else { 6.5 };
+            fixed_tick_call(&mut fl, counts_of(amps), BUS_24V);
         }
     });
     // The capture beside a running loop: idle, armed and waiting for a

@@ -232,6 +232,7 @@ impl FixedHeat {
 mod tests {
     use super::*;
     use crate::supervisor::TripClass;
+    use crate::supervisor::thermal::THERMAL_STEP_S as THERMAL_STEP_S_FOR_TEST;
 
     #[test]
     fn mul_shift_is_the_exact_product_rounded_down() {
@@ -246,6 +247,50 @@ mod tests {
             let exact = (x as u128 * m as u128) >> s;
             if exact < (1u128 << 64) {
                 assert_eq!(mul_shift(x, m, s) as u128, exact, "{x} {m} {s}");
+            }
+        }
+    }
+
+    #[test]
+    fn the_heat_is_the_whole_products_bit_for_bit() {
+        // Against the step taken whole at its end in 128-bit arithmetic
+        // (the model takes `(1 - alpha) h` on the step's first tick), for
+        // steps of 1 to 7 ticks and the 200 of 50 us, under varying
+        // currents up to full scale, with the heat set at moments in every
+        // part of the step.
+        let c = ThermalConfig::from_time_constant(0.5, 1.0).unwrap();
+        let mut x = 0x2545_f491_4f6c_dd1du64;
+        let mut random = move || {
+            x ^= x << 13;
+            x ^= x >> 7;
+            x ^= x << 17;
+            x
+        };
+        for n in [1u16, 2, 3, 4, 5, 6, 7, 200] {
+            let period = THERMAL_STEP_S_FOR_TEST / n as f32;
+            let mut model = FixedHeat::new(c, period, 8.0).unwrap();
+            assert_eq!(model.ticks_per_step, n);
+            let (am, ashift, km, kshift) = (model.alpha_m, model.alpha_s, model.kappa_m, model.kappa_s);
+            let whole = |x: u64, m: u32, s: u32| ((x as u128 * m as u128) >> s) as u64;
+            let (mut heat, mut sum, mut count) = (0u64, 0u64, 0u16);
+            for k in 0..(n as u32 * 30) {
+                if random() % 97 == 0 {
+                    let h = (random() % 4000) as f32 / 1000.0;
+                    model.set_heat(h).unwrap();
+                    heat = libm::round(h as f64 * ONE as f64) as u64;
+                }
+                let q = (random() % 65536) as u16 as i16;
+                let tripped = model.tick(q);
+                sum += (q as i32 * q as i32) as u64;
+                count += 1;
+                if count == n {
+                    heat = heat - whole(heat, am, ashift) + whole(sum, km, kshift);
+                    sum = 0;
+                    count = 0;
+                }
+                assert_eq!(model.heat, heat, "{n} ticks a step, tick {k}");
+                assert_eq!(tripped, heat >= model.trip, "{n} ticks a step, tick {k}");
+                assert_eq!(model.still_hot(), heat > ONE, "{n} ticks a step, tick {k}");
             }
         }
     }
