@@ -473,8 +473,12 @@ proptest! {
         samples in 1u16..4,
         readings in proptest::collection::vec(reading(), 1..400),
         commands in proptest::collection::vec((0usize..400, 0u8..4, -5.0f32..5.0), 0..12),
+        // Limits holding all the bus gives (the bus alone limits the PI),
+        // or narrower (intersected each tick).
+        limit_v in prop_oneof![Just(30.0f32), 2.0f32..28.0],
     ) {
         let board = Board {
+            limit_v,
             offset_counts: offset,
             amps_per_count: apc,
             samples,
