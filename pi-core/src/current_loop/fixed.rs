@@ -562,11 +562,15 @@ impl FixedLoop {
     /// The running tick: setpoint, PI within what the bus gives, duty.
     #[inline(always)]
     fn run(&mut self, current_q15: i16, bus_counts: u16) -> FixedDrive {
-        // Slew toward the target.
-        // Slew toward the target (no sum can overflow: see `new`).
+        // Slew toward the target (the setpoint and the target stay within
+        // 2^29 and the step within 2^30, so no sum wraps: see `new`).
         let mut r = self.setpoint.0;
         if r != self.target.0 {
-            r = self.target.0.max(r - self.sp_step.0).min(r + self.sp_step.0);
+            r = self
+                .target
+                .0
+                .max(r.wrapping_sub(self.sp_step.0))
+                .min(r.wrapping_add(self.sp_step.0));
             self.setpoint = Fixed(r);
         }
         let bus_q15 = (bus_counts as u32) << (self.bus_shift & 31);
